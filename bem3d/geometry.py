@@ -1,0 +1,68 @@
+"""Panels: flat triangles with their derived geometry, the input every operator works on."""
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+
+@dataclass(frozen=True)
+class Panels:
+    """Flat triangular panels of all conductors, in metres.
+
+    vertices: (n, 3, 3) corner coordinates; owner: (n,) index of the conductor each panel belongs
+    to; names: conductor names in matrix order. Centroids, unit normals (right-hand rule on the
+    corner order), areas (m^2) and radii (largest centroid-to-corner distance, m) are derived.
+    """
+
+    vertices: np.ndarray
+    owner: np.ndarray
+    names: tuple
+    centroids: np.ndarray = field(init=False, repr=False)
+    normals: np.ndarray = field(init=False, repr=False)
+    areas: np.ndarray = field(init=False, repr=False)
+    radii: np.ndarray = field(init=False, repr=False)
+
+    def __post_init__(self):
+        v = np.ascontiguousarray(self.vertices, dtype=np.float64)
+        cross = np.cross(v[:, 1] - v[:, 0], v[:, 2] - v[:, 0])
+        twice_area = np.linalg.norm(cross, axis=1)
+        centroids = v.mean(axis=1)
+        radii = np.linalg.norm(v - centroids[:, None, :], axis=2).max(axis=1)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            normals = cross / twice_area[:, None]
+        for name, value in [("vertices", v), ("owner", np.ascontiguousarray(self.owner, np.int64)),
+                            ("names", tuple(self.names)), ("centroids", centroids),
+                            ("normals", np.ascontiguousarray(normals)), ("areas", 0.5 * twice_area),
+                            ("radii", radii)]:
+            object.__setattr__(self, name, value)
+
+    @classmethod
+    def from_arrays(cls, points, triangles, owner, names):
+        """Panels from shared corner points (m, 3) and corner indices (n, 3)."""
+        return cls(np.asarray(points, np.float64)[np.asarray(triangles)], owner, names)
+
+    def __len__(self):
+        return len(self.areas)
+
+    @property
+    def n_conductors(self):
+        return len(self.names)
+
+    def conductor_areas(self):
+        """Surface area of each conductor, m^2."""
+        return np.bincount(self.owner, weights=self.areas, minlength=self.n_conductors)
+
+    def excitation(self):
+        """Right-hand sides (n_panels, n_conductors): panel area where the panel is on conductor j.
+
+        These are the Galerkin projections of a unit potential on conductor j (others at 0 V)."""
+        b = np.zeros((len(self), self.n_conductors))
+        b[np.arange(len(self)), self.owner] = self.areas
+        return b
+
+    def transformed(self, scale=1.0, rotation=None, shift=(0.0, 0.0, 0.0)):
+        """A copy moved rigidly: x -> scale * R x + shift."""
+        v = self.vertices * scale
+        if rotation is not None:
+            v = v @ np.asarray(rotation).T
+        return Panels(v + np.asarray(shift), self.owner, self.names)

@@ -1,0 +1,49 @@
+"""Dense Galerkin single-layer matrix: P_kl = 1/(4 pi eps) * int_Tk int_Tl 1/|x - y|."""
+
+import math
+
+import numpy as np
+from scipy.sparse.linalg import LinearOperator
+
+from ..constants import EPS0
+from ..errors import ResourceError
+from ..kernels import assemble_dense
+from . import PairRules, kernel_arguments
+
+
+def dense_bytes(n_panels):
+    """Memory for the dense matrix, bytes."""
+    return 8 * n_panels * n_panels
+
+
+class DenseOperator(LinearOperator):
+    """The assembled matrix P (1/F, i.e. V per C of panel charge... times m^2) as a LinearOperator.
+
+    P maps panel charge densities sigma (C/m^2) to tested potentials int_Tk phi dA (V m^2).
+    """
+
+    def __init__(self, panels, eps_r=1.0, rules=PairRules(), memory_limit=None):
+        n = len(panels)
+        need = dense_bytes(n)
+        if memory_limit is not None and need > memory_limit:
+            raise ResourceError(
+                f"dense matrix for {n} panels needs {need / 2**30:.1f} GiB, more than the "
+                f"{memory_limit / 2**30:.1f} GiB allowed; use fewer panels")
+        matrix = np.empty((n, n))
+        assemble_dense(matrix, *kernel_arguments(panels, rules))
+        matrix *= 1.0 / (4.0 * math.pi * EPS0 * eps_r)
+        self.matrix = matrix
+        self.rules = rules
+        super().__init__(np.float64, (n, n))
+
+    def _matvec(self, x):
+        return self.matrix @ x
+
+    def _matmat(self, x):
+        return self.matrix @ x
+
+    def _adjoint(self):
+        return self
+
+    def diagonal(self):
+        return np.diagonal(self.matrix).copy()
