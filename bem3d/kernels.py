@@ -78,7 +78,7 @@ def _outer_closed_sum(xk, wk, vl, nl):
     return s
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def panel_pair_integral(k, l, verts, normals, centroids, radii, areas,
                         pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid,
                         touch, near, far):

@@ -1,0 +1,114 @@
+"""Writers for results: JSON, CSV, SPICE subcircuit, VTK PolyData. Each write is atomic."""
+
+import json
+import os
+import re
+import tempfile
+from contextlib import contextmanager
+from pathlib import Path
+
+import numpy as np
+
+from . import __version__
+
+CAUTION = ("Engineering estimate from a surface discretisation. Stored field energy in "
+           "high-voltage structures can injure; clearances and safety follow the applicable "
+           "codes and licensed practice, not this result.")
+
+
+@contextmanager
+def atomic_path(target):
+    """Yield a temporary path beside target (same suffix); it replaces target only on success."""
+    target = Path(target)
+    target.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{target.stem}.", suffix=target.suffix, dir=target.parent)
+    os.close(fd)
+    try:
+        yield Path(tmp)
+        os.replace(tmp, target)
+    finally:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+
+
+def _write_text(target, text):
+    with atomic_path(target) as tmp:
+        tmp.write_text(text, encoding="utf-8")
+
+
+def result_record(result, extra=None):
+    """The result as a JSON-ready dict (SI units, names in matrix order)."""
+    record = {
+        "bem3d_version": __version__,
+        "conductors": list(result.names),
+        "maxwell_capacitance_F": result.maxwell.tolist(),
+        "mutual_capacitance_F": result.mutual.tolist(),
+        "panels": int(result.n_panels),
+        "potentials_V": result.potentials.tolist(),
+        "charges_C": result.charges.tolist(),
+        "energy_J": result.energy,
+        "checks": result.checks(),
+        "solver": result.solver,
+        "timings_s": result.timings_s,
+        "caution": CAUTION,
+    }
+    record.update(extra or {})
+    return record
+
+
+def write_json(result, target, extra=None):
+    _write_text(target, json.dumps(result_record(result, extra), indent=2) + "\n")
+
+
+def write_csv(result, target):
+    """Both matrices in one table: columns matrix, conductor, then one column per conductor (F)."""
+    rows = ["matrix,conductor," + ",".join(result.names)]
+    for label, matrix in [("maxwell_F", result.maxwell), ("mutual_F", result.mutual)]:
+        for name, row in zip(result.names, matrix):
+            rows.append(f"{label},{name}," + ",".join(f"{v:.9e}" for v in row))
+    _write_text(target, "\n".join(rows) + "\n")
+
+
+def spice_node(name):
+    """A conductor name made safe as a SPICE node name."""
+    return re.sub(r"[^A-Za-z0-9_]", "_", name)
+
+
+def write_spice(result, target, subckt="bem3d_capacitance"):
+    """A .SUBCKT of the mutual capacitances; port REF is the far/ground reference."""
+    nodes = [spice_node(n) for n in result.names]
+    mutual = result.mutual
+    lines = [f"* mutual capacitances from bem3d {__version__}; {result.n_panels} panels",
+             "* REF is the reference at infinity (or ground); tie it to your circuit ground.",
+             f".SUBCKT {spice_node(subckt)} " + " ".join(nodes) + " REF"]
+    for i, a in enumerate(nodes):
+        for j in range(i + 1, len(nodes)):
+            if mutual[i, j] > 0:
+                lines.append(f"C_{a}_{nodes[j]} {a} {nodes[j]} {mutual[i, j]:.6e}")
+        if mutual[i, i] > 0:
+            lines.append(f"C_{a}_REF {a} REF {mutual[i, i]:.6e}")
+    lines.append(f".ENDS {spice_node(subckt)}")
+    _write_text(target, "\n".join(lines) + "\n")
+
+
+def surface_polydata(panels, cell_arrays):
+    """pyvista PolyData of the panels (metres) with the given cell arrays."""
+    import pyvista as pv
+
+    points, corner_ids = np.unique(panels.vertices.reshape(-1, 3), axis=0, return_inverse=True)
+    faces = np.hstack([np.full((len(panels), 1), 3), corner_ids.reshape(-1, 3)]).ravel()
+    mesh = pv.PolyData(points, faces)
+    for name, values in cell_arrays.items():
+        mesh.cell_data[name] = values
+    return mesh
+
+
+def write_surface(panels, result, target):
+    """surface.vtp: sigma (C/m^2) at the given potentials, conductor id, conductor potential (V)."""
+    mesh = surface_polydata(panels, {
+        "sigma": result.panel_sigma(),
+        "conductor": panels.owner.astype(np.int32),
+        "potential": result.potentials[panels.owner],
+    })
+    with atomic_path(target) as tmp:
+        mesh.save(tmp)

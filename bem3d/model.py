@@ -1,0 +1,117 @@
+"""The model: which meshes, their length unit, the background permittivity, the potentials.
+
+A model comes from command-line flags or from a TOML model file such as
+
+    length_unit = "mm"                  # m, cm, mm, um, in, mil
+    relative_permittivity = 1.0         # uniform background medium
+    meshes = ["sensor_head.msh"]        # paths relative to this file
+    [volts]                             # conductors not listed are at 0 V
+    drive = 5.0
+    [output]
+    folder = "sensor_out"               # relative to this file
+    spice_name = "sensor_head"
+"""
+
+import math
+from dataclasses import dataclass, field
+from pathlib import Path
+
+try:
+    import tomllib
+except ModuleNotFoundError:          # Python 3.10
+    import tomli as tomllib
+
+from .constants import LENGTH_UNITS
+from .errors import ModelError
+
+_TOP_KEYS = {"length_unit", "relative_permittivity", "meshes", "volts", "output"}
+_OUTPUT_KEYS = {"folder", "spice_name"}
+
+
+@dataclass
+class Model:
+    """Everything needed to run one extraction. Potentials in V; lengths in `length_unit`."""
+
+    meshes: list
+    length_unit: str = "m"
+    relative_permittivity: float = 1.0
+    volts: dict = field(default_factory=dict)
+    output_folder: Path | None = None
+    spice_name: str = "bem3d_capacitance"
+    source: str = "command line"
+
+    def __post_init__(self):
+        self.meshes = [Path(p) for p in self.meshes]
+        if not self.meshes:
+            raise ModelError(f"{self.source}: no mesh files given")
+        if self.length_unit not in LENGTH_UNITS:
+            raise ModelError(f"{self.source}: unknown length unit '{self.length_unit}' "
+                             f"(use one of {', '.join(LENGTH_UNITS)})")
+        eps = _number(self.relative_permittivity, "relative permittivity", self.source)
+        if not eps > 0:
+            raise ModelError(f"{self.source}: relative permittivity must be positive, got {eps:g}")
+        self.relative_permittivity = eps
+        self.volts = {str(k): _number(v, f"potential of '{k}'", self.source)
+                      for k, v in self.volts.items()}
+
+
+def _number(value, what, source):
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise ModelError(f"{source}: {what} must be a number, got {value!r}")
+    if not math.isfinite(value):
+        raise ModelError(f"{source}: {what} must be finite, got {value!r}")
+    return float(value)
+
+
+def load_model(path):
+    """Read a TOML model file; relative paths in it are taken from the file's folder."""
+    path = Path(path)
+    try:
+        data = tomllib.loads(path.read_bytes().decode("utf-8"))
+    except FileNotFoundError:
+        raise ModelError(f"{path}: model file not found") from None
+    except (OSError, UnicodeDecodeError) as err:
+        raise ModelError(f"{path}: cannot read model file ({err})") from None
+    except tomllib.TOMLDecodeError as err:
+        raise ModelError(f"{path}: malformed TOML ({err})") from None
+    unknown = set(data) - _TOP_KEYS
+    if unknown:
+        raise ModelError(f"{path}: unknown key(s) {', '.join(sorted(unknown))} "
+                         f"(known: {', '.join(sorted(_TOP_KEYS))})")
+    meshes = data.get("meshes")
+    if not isinstance(meshes, list) or not all(isinstance(m, str) for m in meshes):
+        raise ModelError(f"{path}: 'meshes' must be a list of file names")
+    volts = data.get("volts", {})
+    output = data.get("output", {})
+    for key, value, kind in [("volts", volts, dict), ("output", output, dict)]:
+        if not isinstance(value, kind):
+            raise ModelError(f"{path}: [{key}] must be a table")
+    unknown = set(output) - _OUTPUT_KEYS
+    if unknown:
+        raise ModelError(f"{path}: unknown key(s) in [output]: {', '.join(sorted(unknown))}")
+    unit = data.get("length_unit", "m")
+    if not isinstance(unit, str):
+        raise ModelError(f"{path}: 'length_unit' must be a string")
+    folder = output.get("folder")
+    spice_name = output.get("spice_name", "bem3d_capacitance")
+    if folder is not None and not isinstance(folder, str) or not isinstance(spice_name, str):
+        raise ModelError(f"{path}: [output] folder and spice_name must be strings")
+    here = path.parent
+    return Model(meshes=[here / m for m in meshes], length_unit=unit,
+                 relative_permittivity=data.get("relative_permittivity", 1.0), volts=volts,
+                 output_folder=None if folder is None else here / folder,
+                 spice_name=spice_name, source=str(path))
+
+
+def parse_volts(items, source="--volts"):
+    """{'drive': 5.0} from ['drive=5', ...]."""
+    volts = {}
+    for item in items or []:
+        name, sep, value = item.partition("=")
+        try:
+            volts[name.strip()] = float(value)
+        except ValueError:
+            sep = ""
+        if not sep or not name.strip():
+            raise ModelError(f"{source}: expected NAME=VOLTS, got '{item}'")
+    return volts

@@ -1,0 +1,74 @@
+"""From panels (or mesh files) to a CapacitanceResult: assemble, solve, reduce."""
+
+import math
+import sys
+import time
+
+import numpy as np
+
+from .errors import ModelError, ResourceError
+from .operators import PairRules
+from .operators.dense import DenseOperator, dense_bytes
+from .resources import available_memory
+from .results import CapacitanceResult
+from .solve import solve_cg, solve_direct
+
+#: Above this many panels the dense backend solves by CG instead of Cholesky.
+DIRECT_LIMIT = 4000
+#: Share of the available memory a run may plan to use.
+MEMORY_FRACTION = 0.6
+
+
+def _log(progress, message):
+    if progress:
+        print(message, file=sys.stderr, flush=True)
+
+
+def plan_memory(n_panels, solver):
+    """Bytes the dense backend will need: the matrix, plus its Cholesky factor for 'direct'."""
+    return dense_bytes(n_panels) * (2 if solver == "direct" else 1)
+
+
+def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto", tol=1e-7,
+                 progress=False):
+    """Capacitance of the conductors in `panels` (metres) in a medium of relative permittivity eps_r.
+
+    volts: {conductor name: V}; conductors not named are at 0 V. solver: 'direct' (Cholesky),
+    'cg' (conjugate gradients to relative residual tol) or 'auto' (direct up to DIRECT_LIMIT)."""
+    volts = dict(volts or {})
+    unknown = sorted(set(volts) - set(panels.names))
+    if unknown:
+        raise ModelError(f"--volts: no conductor named {', '.join(unknown)} "
+                         f"(conductors: {', '.join(panels.names)})")
+    if solver == "auto":
+        solver = "direct" if len(panels) <= DIRECT_LIMIT else "cg"
+    if solver not in ("direct", "cg"):
+        raise ModelError(f"unknown solver '{solver}' (use auto, direct or cg)")
+    need, have = plan_memory(len(panels), solver), available_memory()
+    if need > MEMORY_FRACTION * have:
+        raise ResourceError(
+            f"{len(panels)} panels need {need / 2**30:.1f} GiB for the dense matrix, more than "
+            f"{MEMORY_FRACTION:.0%} of the {have / 2**30:.1f} GiB available; coarsen the mesh")
+    timings = {}
+    _log(progress, f"assembling {len(panels)} panels ({need / 2**30:.2f} GiB) ...")
+    t0 = time.perf_counter()
+    operator = DenseOperator(panels, eps_r=eps_r, rules=rules)
+    timings["assembly"] = time.perf_counter() - t0
+    _log(progress, f"solving ({solver}) ...")
+    t0 = time.perf_counter()
+    rhs = panels.excitation()
+    if solver == "direct":
+        report = solve_direct(operator.matrix, rhs)
+    else:
+        report = solve_cg(operator, rhs, tol=tol)
+    timings["solve"] = time.perf_counter() - t0
+    maxwell = rhs.T @ report.charges
+    potentials = np.array([volts.get(name, 0.0) for name in panels.names])
+    settings = {"backend": "dense", "solver": report.method, "iterations": report.iterations,
+                "relative_residual": report.relative_residual, "tolerance": tol,
+                "relative_permittivity": eps_r, "pair_rules": rules.as_dict()}
+    return CapacitanceResult(names=panels.names, maxwell=0.5 * (maxwell + maxwell.T),
+                             sigma=report.charges, potentials=potentials, n_panels=len(panels),
+                             solver=settings, timings_s=timings,
+                             asymmetry=float(np.max(np.abs(maxwell - maxwell.T))
+                                             / np.max(np.abs(np.diag(maxwell)))))

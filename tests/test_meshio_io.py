@@ -1,0 +1,371 @@
+"""Tests for bem3d.meshio_io: reading conductors from surface meshes and checking their geometry.
+
+Every mesh is made here with meshio.write; every expected number is a closed form noted beside it.
+"""
+
+import math
+import warnings
+
+import meshio
+import numpy as np
+import pytest
+
+from bem3d.errors import Bem3dError, MeshError, ModelError
+from bem3d.geometry import Panels
+from bem3d.meshio_io import (_triangle_distance, check_geometry, mesh_summary,
+                             read_conductors)
+
+# Corner tetrahedron (0, e_x, e_y, e_z), faces oriented outward.
+TET_POINTS = np.array([[0, 0, 0], [1, 0, 0], [0, 1, 0], [0, 0, 1]], dtype=float)
+TET_TRIS = np.array([[0, 2, 1], [0, 1, 3], [0, 3, 2], [1, 2, 3]])
+# Its surface: three right triangles of legs 1 (area 1/2 each) and an equilateral triangle of
+# side sqrt(2) (area sqrt(3)/4 * 2), closed form.
+TET_AREA = 1.5 + math.sqrt(3) / 2
+
+# meshio's writers warn about things our tiny meshes do not need (missing tags, int64 casts).
+pytestmark = pytest.mark.filterwarnings("ignore")
+
+
+def two_tets(shift=(3.0, 0.0, 0.0)):
+    """Points and triangles of the corner tetrahedron and a copy moved by shift."""
+    points = np.vstack([TET_POINTS, TET_POINTS + np.asarray(shift)])
+    return points, np.vstack([TET_TRIS, TET_TRIS + 4])
+
+
+def write(path, points, cells, file_format=None, **kwargs):
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        meshio.write(path, meshio.Mesh(points, cells, **kwargs), file_format=file_format)
+    return path
+
+
+FORMATS = [("msh", "gmsh22"), ("msh", "gmsh"), ("stl", None), ("obj", None), ("ply", None),
+           ("off", None), ("vtk", None), ("vtu", None), ("mesh", None)]
+
+
+@pytest.mark.parametrize("ext, file_format", FORMATS)
+def test_every_format_reads_the_same_two_components(tmp_path, ext, file_format):
+    points, tris = two_tets()
+    path = write(tmp_path / f"pair.{ext}", points, [("triangle", tris)], file_format)
+    panels, found_warnings = read_conductors(path)
+    assert found_warnings == []
+    assert panels.names == ("c1", "c2")
+    assert len(panels) == 8
+    np.testing.assert_allclose(panels.conductor_areas(), [TET_AREA, TET_AREA], rtol=1e-12)
+    # c1 is the tetrahedron holding the lexicographically lowest corner, the one at the origin.
+    assert np.all(panels.centroids[panels.owner == 0][:, 0] < 1)
+
+
+def test_component_order_follows_geometry_not_cell_order(tmp_path):
+    points, tris = two_tets(shift=(-5.0, 0.0, 0.0))
+    path = write(tmp_path / "pair.stl", points, [("triangle", tris)])
+    panels, _ = read_conductors(path)
+    # The moved copy has the lowest corner (x = -5), so it is c1 although its cells come last.
+    assert panels.names == ("c1", "c2")
+    assert np.all(panels.centroids[panels.owner == 0][:, 0] < -3)
+    assert np.all(panels.owner[:4] == 1)
+
+
+def test_single_conductor_is_named_by_the_file_stem(tmp_path):
+    path = write(tmp_path / "electrode.ply", TET_POINTS, [("triangle", TET_TRIS)])
+    panels, _ = read_conductors(path)
+    assert panels.names == ("electrode",)
+
+
+@pytest.mark.parametrize("file_format", ["gmsh22", "gmsh"])
+def test_gmsh_physical_names_ordered_by_tag(tmp_path, file_format):
+    points, tris = two_tets()
+    # The tetrahedron at the origin is physical group 2 ("top"), the other group 1 ("bottom");
+    # a line in group 3 is not a surface and must be skipped.
+    cells = [("triangle", tris[4:]), ("triangle", tris[:4])]
+    tags = [np.array([1] * 4), np.array([2] * 4)]
+    kwargs = dict(cell_data={"gmsh:physical": tags, "gmsh:geometrical": tags},
+                  field_data={"bottom": np.array([1, 2]), "top": np.array([2, 2])})
+    if file_format == "gmsh":  # the 4.1 writer needs each node's entity when there are blocks
+        kwargs["point_data"] = {"gmsh:dim_tags": np.array([[2, 2]] * 4 + [[2, 1]] * 4)}
+    path = write(tmp_path / "groups.msh", points, cells, file_format, **kwargs)
+    panels, _ = read_conductors(path)
+    assert panels.names == ("bottom", "top")
+    assert np.all(panels.centroids[panels.owner == 0][:, 0] > 2)  # "bottom" is the moved copy
+    np.testing.assert_allclose(panels.conductor_areas(), [TET_AREA, TET_AREA], rtol=1e-12)
+
+
+def test_one_physical_group_holding_two_bodies_is_one_conductor(tmp_path):
+    points, tris = two_tets()
+    tags = [np.array([4] * 8)]
+    path = write(tmp_path / "wired.msh", points, [("triangle", tris)], "gmsh22",
+                 cell_data={"gmsh:physical": tags, "gmsh:geometrical": tags},
+                 field_data={"both": np.array([4, 2])})
+    panels, _ = read_conductors(path)
+    assert panels.names == ("both",)
+    # Two tetrahedron surfaces, closed form.
+    np.testing.assert_allclose(panels.conductor_areas(), [2 * TET_AREA], rtol=1e-12)
+
+
+@pytest.mark.parametrize("ext, key", [("vtu", "conductor"), ("vtk", "tag"),
+                                      ("vtu", "CellEntityIds"), ("mesh", "medit:ref")])
+def test_integer_cell_tags(tmp_path, ext, key):
+    points, tris = two_tets()
+    path = write(tmp_path / f"tagged.{ext}", points, [("triangle", tris)],
+                 cell_data={key: [np.array([7] * 4 + [5] * 4)]})
+    panels, _ = read_conductors(path)
+    assert panels.names == ("tag5", "tag7")
+    assert np.all(panels.owner == [1] * 4 + [0] * 4)
+
+
+def test_tags_split_touching_parts_that_components_cannot(tmp_path):
+    # Two faces of the tetrahedron tagged apart: the tags decide, even though the faces share an
+    # edge; the shared edge then makes the two conductors touch, which is an error.
+    path = write(tmp_path / "faces.vtu", TET_POINTS, [("triangle", TET_TRIS)],
+                 cell_data={"conductor": [np.array([1, 1, 2, 2])]})
+    with pytest.raises(MeshError, match=r"faces\.vtu.*'tag1' and 'tag2' touch"):
+        read_conductors(path)
+    panels, _ = read_conductors(path, check=False)
+    assert panels.names == ("tag1", "tag2")
+
+
+def test_several_files_one_conductor_each_in_the_given_order(tmp_path):
+    points, tris = two_tets()
+    b = write(tmp_path / "b.stl", points, [("triangle", tris)])  # two bodies, still one conductor
+    a = write(tmp_path / "a.obj", TET_POINTS + [0, 5, 0], [("triangle", TET_TRIS)])
+    panels, _ = read_conductors([b, a])
+    assert panels.names == ("b", "a")
+    np.testing.assert_allclose(panels.conductor_areas(), [2 * TET_AREA, TET_AREA], rtol=1e-12)
+    panels, _ = read_conductors([b, a], names=["gate", "drain"])
+    assert panels.names == ("gate", "drain")
+
+
+def test_stem_collision_is_an_error_unless_names_are_given(tmp_path):
+    (tmp_path / "x").mkdir()
+    first = write(tmp_path / "plate.stl", TET_POINTS, [("triangle", TET_TRIS)])
+    second = write(tmp_path / "x" / "plate.ply", TET_POINTS + 5, [("triangle", TET_TRIS)])
+    with pytest.raises(ModelError, match=r"plate\.stl.*plate\.ply.*'plate'"):
+        read_conductors([first, second])
+    panels, _ = read_conductors([first, second], names=["p1", "p2"])
+    assert panels.names == ("p1", "p2")
+
+
+def test_wrong_number_of_names(tmp_path):
+    points, tris = two_tets()
+    path = write(tmp_path / "pair.stl", points, [("triangle", tris)])
+    with pytest.raises(ModelError, match=r"pair\.stl: 1 conductor names given but 2"):
+        read_conductors(path, names=["only"])
+
+
+def test_quads_are_split_along_the_shorter_diagonal(tmp_path):
+    # Quad a(0,0) b(1,0) c(3,1) d(0,1): diagonal ac = sqrt(10), bd = sqrt(2), so it is cut along
+    # bd. Area by the shoelace formula: (0 + 1 + 3 + 0) / 2 = 2.
+    points = np.array([[0, 0, 0], [1, 0, 0], [3, 1, 0], [0, 1, 0]], dtype=float)
+    path = write(tmp_path / "quad.vtu", points, [("quad", np.array([[0, 1, 2, 3]]))])
+    panels, _ = read_conductors(path)
+    assert len(panels) == 2
+    assert panels.areas.sum() == pytest.approx(2.0, rel=1e-12)
+    for tri in panels.vertices:
+        corners = {tuple(p) for p in tri}
+        assert {(1.0, 0.0, 0.0), (0.0, 1.0, 0.0)} <= corners
+    np.testing.assert_allclose(panels.normals, [[0, 0, 1], [0, 0, 1]])  # orientation kept
+
+
+def test_unit_square_quads_area(tmp_path):
+    # Two unit squares of quads (area 1 each, closed form), 3 apart along x.
+    points = np.array([[0, 0, 0], [1, 0, 0], [1, 1, 0], [0, 1, 0]], dtype=float)
+    points = np.vstack([points, points + [3, 0, 0]])
+    path = write(tmp_path / "plates.vtk", points, [("quad", np.array([[0, 1, 2, 3], [4, 5, 6, 7]]))])
+    panels, _ = read_conductors(path)
+    np.testing.assert_allclose(panels.conductor_areas(), [1.0, 1.0], rtol=1e-12)
+
+
+def test_millimetres_become_metres(tmp_path):
+    path = write(tmp_path / "tet.stl", TET_POINTS, [("triangle", TET_TRIS)])
+    metres, _ = read_conductors(path)
+    mm, _ = read_conductors(path, units="mm")
+    np.testing.assert_allclose(mm.vertices, metres.vertices * 1e-3)  # 1 mm = 1e-3 m
+    assert mm.conductor_areas()[0] == pytest.approx(TET_AREA * 1e-6, rel=1e-12)
+
+
+def test_other_cells_are_skipped_with_a_warning(tmp_path):
+    cells = [("triangle", TET_TRIS), ("line", np.array([[0, 1], [1, 2]])),
+             ("vertex", np.array([[3]])), ("tetra", np.array([[0, 1, 2, 3]]))]
+    path = write(tmp_path / "mixed.vtu", TET_POINTS, cells)
+    panels, found_warnings = read_conductors(path)
+    assert len(panels) == 4
+    assert len(found_warnings) == 1
+    message = found_warnings[0]
+    assert message.startswith(str(path))
+    assert "2 line" in message and "1 vertex" in message and "1 tetra" in message
+
+
+def test_second_order_triangles_keep_their_corners(tmp_path):
+    # Mid-edge nodes appended after the corners, as meshio orders triangle6.
+    mid = (TET_POINTS[TET_TRIS] + TET_POINTS[np.roll(TET_TRIS, -1, axis=1)]) / 2
+    points = np.vstack([TET_POINTS, mid.reshape(-1, 3)])
+    cells = np.column_stack([TET_TRIS, 4 + np.arange(12).reshape(4, 3)])
+    path = write(tmp_path / "curved.vtu", points, [("triangle6", cells)])
+    panels, found_warnings = read_conductors(path)
+    assert panels.conductor_areas()[0] == pytest.approx(TET_AREA, rel=1e-12)
+    assert "4 triangle6" in found_warnings[0]
+
+
+# --- bad input: the right error class, and a one-line message naming the file and problem ---
+
+def assert_one_line(error, path):
+    text = str(error.value)
+    assert "\n" not in text
+    assert text.startswith(str(path))
+    assert isinstance(error.value, Bem3dError)
+
+
+def test_missing_file(tmp_path):
+    path = tmp_path / "absent.stl"
+    with pytest.raises(MeshError, match="file not found") as error:
+        read_conductors(path)
+    assert_one_line(error, path)
+
+
+@pytest.mark.parametrize("name", ["junk.msh", "junk.stl", "junk.vtu", "junk.obj", "junk.xyz"])
+def test_garbage_bytes(tmp_path, name):
+    path = tmp_path / name
+    path.write_bytes(bytes(range(256)) * 3)
+    with pytest.raises(MeshError, match="cannot read as a mesh") as error:
+        read_conductors(path)
+    assert_one_line(error, path)
+
+
+def test_unknown_unit(tmp_path):
+    path = write(tmp_path / "tet.stl", TET_POINTS, [("triangle", TET_TRIS)])
+    with pytest.raises(ModelError, match="unknown length unit 'furlong'.*mm") as error:
+        read_conductors(path, units="furlong")
+    assert_one_line(error, path)
+
+
+def test_no_surface_cells(tmp_path):
+    path = write(tmp_path / "wire.vtu", TET_POINTS, [("line", np.array([[0, 1], [1, 2]]))])
+    with pytest.raises(MeshError, match=r"no surface cells.*2 line") as error:
+        read_conductors(path)
+    assert_one_line(error, path)
+
+
+def test_nan_coordinate(tmp_path):
+    points = TET_POINTS.copy()
+    points[2, 1] = np.nan
+    path = write(tmp_path / "nan.vtu", points, [("triangle", TET_TRIS)])
+    # Point 2 is a corner of three of the four faces.
+    with pytest.raises(MeshError, match="3 panel.*NaN or infinite") as error:
+        read_conductors(path)
+    assert_one_line(error, path)
+
+
+def test_zero_area_triangle(tmp_path):
+    points = np.vstack([TET_POINTS, [[0.5, 0.5, 0.0]]])  # on the edge from e_x to e_y
+    tris = np.vstack([TET_TRIS, [[1, 4, 2]]])
+    path = write(tmp_path / "sliver.ply", points, [("triangle", tris)])
+    with pytest.raises(MeshError, match=r"1 zero-area panel.*panel 4.*\(0\.5, 0\.5, 0\) m") as error:
+        read_conductors(path)
+    assert_one_line(error, path)
+
+
+def test_duplicate_triangle_in_any_corner_order(tmp_path):
+    tris = np.vstack([TET_TRIS, [[2, 3, 1]]])  # face (1, 2, 3) again, rotated
+    path = write(tmp_path / "twice.obj", TET_POINTS, [("triangle", tris)])
+    with pytest.raises(MeshError, match="1 duplicate panel") as error:
+        read_conductors(path)
+    assert_one_line(error, path)
+
+
+def test_duplicate_found_across_stl_facets(tmp_path):
+    # STL stores every facet's own corners, so the duplicate is found only after merging points.
+    tris = np.vstack([TET_TRIS, [[3, 2, 1]]])  # reversed orientation counts as the same panel
+    path = write(tmp_path / "twice.stl", TET_POINTS, [("triangle", tris)])
+    with pytest.raises(MeshError, match="duplicate panel"):
+        read_conductors(path)
+
+
+@pytest.mark.parametrize("shift, why", [((1.0, 0.0, 0.0), "share the corner (1, 0, 0)"),
+                                        ((0.2, 0.2, 0.2), "faces cross, no shared corner"),
+                                        ((0.1, 0.1, 0.1), "one inside the other's face plane")])
+def test_touching_or_overlapping_conductors(tmp_path, shift, why):
+    a = write(tmp_path / "left.stl", TET_POINTS, [("triangle", TET_TRIS)])
+    b = write(tmp_path / "right.vtu", TET_POINTS + shift, [("triangle", TET_TRIS)])
+    with pytest.raises(MeshError, match="'left' and 'right' touch or overlap") as error:
+        read_conductors([a, b])
+    assert str(error.value).startswith(f"{a}, {b}:"), why
+
+
+def test_touching_within_one_file_names_the_file(tmp_path):
+    points, tris = two_tets(shift=(1.0, 0.0, 0.0))  # share the corner (1, 0, 0): one component
+    tags = {"conductor": [np.array([1] * 4 + [2] * 4)]}
+    path = write(tmp_path / "pair.vtu", points, [("triangle", tris)], cell_data=tags)
+    with pytest.raises(MeshError, match="'tag1' and 'tag2' touch") as error:
+        read_conductors(path)
+    assert_one_line(error, path)
+
+
+def plates(gap):
+    """Two parallel unit squares (two panels each) at z = 0 and z = gap, as Panels."""
+    square = np.array([[[0, 0, 0], [1, 0, 0], [1, 1, 0]], [[0, 0, 0], [1, 1, 0], [0, 1, 0]]], float)
+    vertices = np.concatenate([square, square + [0, 0, gap]])
+    return Panels(vertices, [0, 0, 1, 1], ("lower", "upper"))
+
+
+def test_check_geometry_gap_thresholds():
+    # Panel radius here is sqrt(5)/3 ~ 0.75 m (centroid to far corner of a half unit square).
+    assert check_geometry(plates(0.5), "cap.msh") == []
+    close = check_geometry(plates(1e-3), "cap.msh")
+    assert len(close) == 1 and "come within 0.001 m" in close[0]
+    with pytest.raises(MeshError, match="cap.msh: conductors 'lower' and 'upper' touch"):
+        check_geometry(plates(1e-9), "cap.msh")
+
+
+def test_check_geometry_names_each_conductors_file():
+    with pytest.raises(MeshError, match=r"^lo\.stl, hi\.stl: conductors 'lower' and 'upper'"):
+        check_geometry(plates(0.0), ["lo.stl", "hi.stl"])
+
+
+def test_check_geometry_reports_how_many_more_problems():
+    p = plates(0.5)
+    v = p.vertices.copy()
+    v[0, 2] = v[0, 1]  # panel 0 collapses to a segment
+    v[3] = v[2]  # panel 3 duplicates panel 2
+    with pytest.raises(MeshError, match=r"zero-area.*\(and 1 more problems\)$"):
+        check_geometry(Panels(v, p.owner, p.names), "bad.vtu")
+
+
+def test_triangle_distance_against_sampling():
+    # Brute force: the minimum distance between dense barycentric samples of the two triangles is
+    # an upper bound that exceeds the true distance by at most the sampling step.
+    rng = np.random.default_rng(1)
+    s, t = rng.normal(size=(2, 40, 3, 3))
+    t[:20] += rng.normal(scale=3, size=(20, 1, 3))  # half the pairs apart, half mostly crossing
+    u = np.linspace(0, 1, 41)
+    w = np.array([(a, b, 1 - a - b) for a in u for b in u if a + b <= 1 + 1e-12])
+    exact = _triangle_distance(s, t)
+    for k in range(len(s)):
+        xs, xt = w @ s[k], w @ t[k]
+        sampled = np.sqrt(((xs[:, None] - xt[None]) ** 2).sum(-1)).min()
+        step = max(np.ptp(s[k], 0).max(), np.ptp(t[k], 0).max()) / 40
+        assert exact[k] <= sampled + 1e-12
+        assert exact[k] >= sampled - 2 * step
+
+
+def test_mesh_summary_of_two_tetrahedra(tmp_path):
+    points, tris = two_tets()
+    path = write(tmp_path / "pair.vtu", points, [("triangle", tris)])
+    panels, _ = read_conductors(path)
+    summary = mesh_summary(panels, path)
+    assert summary["panels"] == 8
+    assert [c["name"] for c in summary["conductors"]] == ["c1", "c2"]
+    assert summary["conductors"][0]["area_m2"] == pytest.approx(TET_AREA, rel=1e-12)
+    assert summary["conductors"][0]["boundary_edges"] == 0  # closed surface
+    assert summary["bounding_box_m"] == [[0, 0, 0], [4, 1, 1]]
+    # Smallest: a right triangle of legs 1 (area 1/2, shortest edge 1); largest: the equilateral
+    # face of side sqrt(2) (area sqrt(3)/2, longest edge sqrt(2)).
+    assert summary["smallest_panel"] == pytest.approx({"area_m2": 0.5, "edge_m": 1.0})
+    assert summary["largest_panel"] == pytest.approx({"area_m2": math.sqrt(3) / 2,
+                                                       "edge_m": math.sqrt(2)})
+    assert summary["problems"] == []
+
+
+def test_mesh_summary_lists_problems_without_raising():
+    summary = mesh_summary(plates(0.0), "cap.msh")
+    assert summary["conductors"][0]["boundary_edges"] == 4  # open unit square: its 4 sides
+    assert len(summary["problems"]) == 1 and "touch" in summary["problems"][0]
