@@ -112,3 +112,17 @@ def write_surface(panels, result, target):
     })
     with atomic_path(target) as tmp:
         mesh.save(tmp)
+
+
+def write_outputs(folder, panels, result, model, warnings=()):
+    """Write result.json, capacitance.csv, <spice_name>.cir and surface.vtp; return their paths."""
+    folder = Path(folder)
+    files = [folder / "result.json", folder / "capacitance.csv",
+             folder / f"{spice_node(model.spice_name)}.cir", folder / "surface.vtp"]
+    extra = {"length_unit_of_meshes": model.length_unit,
+             "meshes": [str(m) for m in model.meshes], "warnings": list(warnings)}
+    write_json(result, files[0], extra)
+    write_csv(result, files[1])
+    write_spice(result, files[2], model.spice_name)
+    write_surface(panels, result, files[3])
+    return files

@@ -16,6 +16,7 @@ Every problem with the input raises a subclass of ``Bem3dError`` whose one-line 
 with the file it concerns.
 """
 
+import os
 import warnings
 from pathlib import Path
 
@@ -54,7 +55,7 @@ def read_conductors(paths, units="m", names=None, check=True):
     conductor names, one per conductor found, replacing the automatic ones in the same order.
     check: run ``check_geometry`` (pass False to inspect a broken mesh with ``mesh_summary``).
     """
-    paths = [Path(paths)] if isinstance(paths, (str, Path)) else [Path(p) for p in paths]
+    paths = [Path(paths)] if isinstance(paths, (str, os.PathLike)) else [Path(p) for p in paths]
     if not paths:
         raise ModelError("no mesh files given")
     label = ", ".join(map(str, paths))
@@ -67,15 +68,18 @@ def read_conductors(paths, units="m", names=None, check=True):
         points, tris, groups, group_names, file_warnings = _read_file(paths[0], split=True)
         out_warnings += file_warnings
         vertices, owner = [points[tris]], [groups]
-        found = group_names if len(group_names) > 1 else [_group_name(group_names[0], paths[0])]
+        if len(group_names) == 1 and group_names[0] is None:
+            group_names = [paths[0].stem]
+        found = group_names
         sources = [paths[0]] * len(found)
     else:
         stems = [p.stem for p in paths]
-        for i, path in enumerate(paths):
-            if names is None and stems.count(stems[i]) > 1:
-                clash = ", ".join(str(p) for p in paths if p.stem == stems[i])
-                raise ModelError(f"{clash}: these files would all be named {stems[i]!r}; "
+        for stem in stems:
+            if names is None and stems.count(stem) > 1:
+                clash = ", ".join(str(p) for p in paths if p.stem == stem)
+                raise ModelError(f"{clash}: these files would all be named {stem!r}; "
                                  "give conductor names explicitly")
+        for i, path in enumerate(paths):
             points, tris, _, _, file_warnings = _read_file(path, split=False)
             out_warnings += file_warnings
             vertices.append(points[tris])
@@ -215,9 +219,9 @@ def _split_quads(points, quads):
 def _groups(mesh, rows, points, tris):
     """Conductor index (0..k-1) of each triangle of one file, and the k names (None if unnamed)."""
     keys = {key.lower(): key for key in mesh.cell_data}
-    physical_names = {int(tag): name for name, (tag, dim) in
-                      ((n, np.ravel(v)[:2]) for n, v in mesh.field_data.items()
-                       if np.size(v) >= 2) if int(dim) == 2}
+    # Gmsh physical names: field_data maps name -> [tag, dimension]; surfaces have dimension 2.
+    physical_names = {int(np.ravel(v)[0]): name for name, v in mesh.field_data.items()
+                      if np.size(v) >= 2 and int(np.ravel(v)[1]) == 2}
     for wanted in TAG_KEYS:
         tags = _tag_values(mesh.cell_data.get(keys.get(wanted)), rows, len(tris))
         if tags is None:
@@ -270,11 +274,6 @@ def _components(points, tris):
     return groups, [f"c{i + 1}" for i in range(len(ranked))] if len(ranked) > 1 else [None]
 
 
-def _group_name(name, path):
-    """A single conductor's name: its own if it has one, else the file's stem."""
-    return name if name is not None else path.stem
-
-
 def _merge(points, tol):
     """Index of a representative for each point (m, 3): points within tol of each other are one."""
     pairs = cKDTree(points).query_pairs(tol, output_type="ndarray")
@@ -299,10 +298,12 @@ def _one_line(exc):
 
 
 def _where(x):
+    """A point (3,) in metres as text."""
     return "(" + ", ".join(f"{c:.6g}" for c in x) + ") m"
 
 
 def _nonfinite_message(source, bad):
+    """The message for panels (mask bad) with NaN or infinite coordinates."""
     first = int(np.flatnonzero(bad)[0])
     return (f"{source}: {int(bad.sum())} panel(s) with NaN or infinite coordinates, "
             f"the first is panel {first}")
@@ -310,7 +311,7 @@ def _nonfinite_message(source, bad):
 
 def _sources(panels, source):
     """The source label of each conductor."""
-    if isinstance(source, (str, Path)):
+    if isinstance(source, (str, os.PathLike)):
         return [str(source)] * panels.n_conductors
     source = [str(s) for s in source]
     if len(source) != panels.n_conductors:
@@ -375,11 +376,11 @@ def _contacts(panels, keep, tol, src):
     near_lists = cKDTree(c).query_ball_point(c, 2 * r * (1 + NEAR_REL) + tol)
     i = np.repeat(np.arange(len(c)), [len(n) for n in near_lists])
     j = np.fromiter((k for n in near_lists for k in n), np.int64, count=len(i))
-    pairs = np.unique(np.column_stack([np.minimum(i, j), np.maximum(i, j)]), axis=0)
+    other = owner[i] != owner[j]
+    pairs = np.unique(np.column_stack([np.minimum(i, j), np.maximum(i, j)])[other], axis=0)
     i, j = pairs[:, 0], pairs[:, 1]
     small = np.minimum(r[i], r[j])
-    pick = ((owner[i] != owner[j])
-            & (np.linalg.norm(c[i] - c[j], axis=1) <= r[i] + r[j] + NEAR_REL * small + tol))
+    pick = np.linalg.norm(c[i] - c[j], axis=1) <= r[i] + r[j] + NEAR_REL * small + tol
     i, j, small = i[pick], j[pick], small[pick]
     if len(i) == 0:
         return [], []
@@ -444,10 +445,12 @@ def _triangle_distance(s, t):
 
 
 def _dot(a, b):
+    """Row-wise dot products of (k, 3) arrays."""
     return np.einsum("ij,ij->i", a, b)
 
 
 def _unit_normal(t):
+    """Unit normals (k, 3) of triangles t (k, 3, 3)."""
     n = np.cross(t[:, 1] - t[:, 0], t[:, 2] - t[:, 0])
     return n / np.linalg.norm(n, axis=1)[:, None]
 
@@ -494,6 +497,5 @@ def _segment_crosses(p, q, t):
     n = _unit_normal(t)
     dp, dq = _dot(p - t[:, 0], n), _dot(q - t[:, 0], n)
     crosses = (dp * dq <= 0) & (dp != dq)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        x = p + (dp / (dp - dq))[:, None] * (q - p)
-    return crosses & _inside(x, t, n)
+    s = np.divide(dp, dp - dq, out=np.zeros_like(dp), where=crosses)
+    return crosses & _inside(p + s[:, None] * (q - p), t, n)

@@ -9,7 +9,7 @@ import numpy as np
 from .errors import ModelError, ResourceError
 from .operators import PairRules
 from .operators.dense import DenseOperator, dense_bytes
-from .resources import available_memory
+from .resources import available_memory, peak_memory
 from .results import CapacitanceResult
 from .solve import solve_cg, solve_direct
 
@@ -72,3 +72,14 @@ def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto"
                              solver=settings, timings_s=timings,
                              asymmetry=float(np.max(np.abs(maxwell - maxwell.T))
                                              / np.max(np.abs(np.diag(maxwell)))))
+
+
+def extract(model, solver="auto", tol=1e-7, rules=PairRules(), progress=False):
+    """Read the model's meshes and solve: returns (panels, CapacitanceResult, warnings)."""
+    from .meshio_io import read_conductors
+
+    panels, warnings = read_conductors(model.meshes, units=model.length_unit)
+    result = solve_panels(panels, model.volts, model.relative_permittivity, rules, solver, tol,
+                          progress)
+    result.solver["peak_memory_MiB"] = peak_memory() / 2**20
+    return panels, result, warnings

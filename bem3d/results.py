@@ -65,12 +65,12 @@ class CapacitanceResult:
     def table(self):
         """The capacitance matrices as text, in one readable unit."""
         scale, prefix = prefix_for(self.maxwell)
-        width = max(10, max(len(n) for n in self.names) + 2)
+        width = max(12, max(len(n) for n in self.names) + 2)
 
         def block(title, matrix):
             lines = [f"{title} [{prefix}F]", " " * width + "".join(f"{n:>{width}}" for n in self.names)]
             for name, row in zip(self.names, matrix):
-                lines.append(f"{name:<{width}}" + "".join(f"{v / scale:>{width}.5g}" for v in row))
+                lines.append(f"{name:<{width}}" + "".join(f"{v / scale:>{width}#.5g}" for v in row))
             return lines
 
         lines = block("Maxwell capacitance matrix", self.maxwell) + [""]

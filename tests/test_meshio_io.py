@@ -282,7 +282,7 @@ def test_duplicate_found_across_stl_facets(tmp_path):
 
 @pytest.mark.parametrize("shift, why", [((1.0, 0.0, 0.0), "share the corner (1, 0, 0)"),
                                         ((0.2, 0.2, 0.2), "faces cross, no shared corner"),
-                                        ((0.1, 0.1, 0.1), "one inside the other's face plane")])
+                                        ((0.1, 0.1, 0.1), "a corner inside the other body")])
 def test_touching_or_overlapping_conductors(tmp_path, shift, why):
     a = write(tmp_path / "left.stl", TET_POINTS, [("triangle", TET_TRIS)])
     b = write(tmp_path / "right.vtu", TET_POINTS + shift, [("triangle", TET_TRIS)])

@@ -1,0 +1,156 @@
+"""Command line: a thin shell over the Python API. Bad input ends in one line and exit code 2."""
+
+import argparse
+import json
+import sys
+import time
+from pathlib import Path
+
+from .errors import Bem3dError
+
+EXIT_BAD_INPUT = 2
+
+
+def _add_model_options(p):
+    p.add_argument("inputs", nargs="+", metavar="INPUT",
+                   help="mesh files (one conductor per file, or groups within one file) "
+                        "or one TOML model file")
+    p.add_argument("--units", help="length unit of the meshes: m, cm, mm, um, in, mil (default m)")
+    p.add_argument("--volts", nargs="+", metavar="NAME=V", default=[],
+                   help="conductor potentials in volts; unlisted conductors are at 0 V")
+    p.add_argument("--eps-r", type=float, help="relative permittivity of the background medium")
+    p.add_argument("--out", type=Path, help="output folder (default: <first input>_result)")
+
+
+def _parser():
+    parser = argparse.ArgumentParser(
+        prog="bem3d", description="Capacitance matrices and field energy of conductors "
+                                  "from surface meshes (boundary-element method).")
+    parser.add_argument("--debug", action="store_true", help="show tracebacks")
+    sub = parser.add_subparsers(dest="command", required=True)
+
+    p = sub.add_parser("extract", help="compute the capacitance matrices")
+    _add_model_options(p)
+    p.add_argument("--solver", choices=["auto", "direct", "cg"], default="auto",
+                   help="direct (Cholesky), cg (conjugate gradients) or auto by size")
+    p.add_argument("--tol", type=float, default=1e-7,
+                   help="CG relative residual; capacitance error is about its square")
+    p.add_argument("--quiet", action="store_true", help="print nothing but errors")
+
+    p = sub.add_parser("demo", help="run the shipped sensor-head demo end to end")
+    p.add_argument("folder", nargs="?", type=Path, default=Path("bem3d_demo"),
+                   help="where to write the demo mesh and results (default: bem3d_demo)")
+
+    p = sub.add_parser("check-mesh", help="report panels, conductors and problems of meshes")
+    p.add_argument("inputs", nargs="+", metavar="INPUT", help="mesh files")
+    p.add_argument("--units", default="m", help="length unit of the meshes (default m)")
+    p.add_argument("--json", action="store_true", help="print the report as JSON")
+    return parser
+
+
+def _model_from_args(args):
+    from .model import Model, load_model, parse_volts
+
+    if len(args.inputs) == 1 and args.inputs[0].lower().endswith(".toml"):
+        model = load_model(args.inputs[0])
+    else:
+        model = Model(meshes=args.inputs, length_unit=args.units or "m")
+    if args.units:
+        model.length_unit = args.units
+    if args.eps_r is not None:
+        model.relative_permittivity = args.eps_r
+    model.volts.update(parse_volts(args.volts))
+    if args.out:
+        model.output_folder = args.out
+    if model.output_folder is None:
+        model.output_folder = Path(f"{Path(args.inputs[0]).stem}_result")
+    model.__post_init__()                  # validate the merged settings
+    return model
+
+
+def _run_extract(model, solver="auto", tol=1e-7, quiet=False):
+    from .export import CAUTION, write_outputs
+    from .pipeline import extract
+
+    start = time.perf_counter()
+    panels, result, warnings = extract(model, solver=solver, tol=tol, progress=not quiet)
+    result.timings_s["total"] = time.perf_counter() - start
+    files = write_outputs(model.output_folder, panels, result, model, warnings)
+    if not quiet:
+        for w in warnings:
+            print(f"warning: {w}", file=sys.stderr)
+        print(result.table())
+        t = result.timings_s
+        print(f"wall time {t['total']:.2f} s (assembly {t['assembly']:.2f} s, "
+              f"solve {t['solve']:.2f} s); peak memory {result.solver['peak_memory_MiB']:.0f} MiB")
+        print(f"caution: {CAUTION}")
+        print(f"wrote {', '.join(f.name for f in files)} to {model.output_folder}")
+    return files
+
+
+def _check_mesh(args):
+    from .meshio_io import mesh_summary, read_conductors
+
+    panels, warnings = read_conductors(args.inputs, units=args.units, check=False)
+    report = mesh_summary(panels, source=args.inputs if len(args.inputs) > 1 else args.inputs[0])
+    report["problems"] = warnings + report["problems"]
+    if args.json:
+        print(json.dumps(report, indent=2))
+    else:
+        from .units import format_quantity
+        print(f"panels: {report['panels']}")
+        for c in report["conductors"]:
+            closed = "closed" if c["boundary_edges"] == 0 else f"open, {c['boundary_edges']} boundary edges"
+            print(f"  {c['name']}: {c['panels']} panels, area {c['area_m2']:.4g} m^2 ({closed})")
+        lo, hi = report["bounding_box_m"] or ([float("nan")] * 3, [float("nan")] * 3)
+        print("bounding box [m]: " + " .. ".join("(" + ", ".join(f"{x:.4g}" for x in v) + ")"
+                                                for v in (lo, hi)))
+        for key in ("smallest_panel", "largest_panel"):
+            p = report[key]
+            if p:
+                print(f"{key.replace('_', ' ')}: area {p['area_m2']:.3g} m^2, "
+                      f"edge {format_quantity(p['edge_m'], 'm')}")
+        print("problems: " + ("none" if not report["problems"] else ""))
+        for problem in report["problems"]:
+            print(f"  {problem}")
+    return 0
+
+
+def _demo(args):
+    from . import demo
+    from .model import Model
+
+    folder = args.folder
+    mesh = folder / "sensor_head.msh"
+    demo.write_demo_mesh(mesh)
+    model = Model(meshes=[mesh], length_unit=demo.LENGTH_UNIT, volts=dict(demo.VOLTS),
+                  output_folder=folder, spice_name="sensor_head")
+    print(f"demo: capacitive sensor head (two sense pads, drive pad, guard ring, lid); "
+          f"drive at {demo.VOLTS['drive']:g} V, others at 0 V")
+    _run_extract(model)
+    print(f"demo files are in {folder.resolve()}")
+    return 0
+
+
+def main(argv=None):
+    args = _parser().parse_args(argv)
+    try:
+        if args.command == "extract":
+            _run_extract(_model_from_args(args), solver=args.solver, tol=args.tol,
+                         quiet=args.quiet)
+            return 0
+        if args.command == "check-mesh":
+            return _check_mesh(args)
+        return _demo(args)
+    except Bem3dError as err:
+        if args.debug:
+            raise
+        print(f"bem3d: error: {err}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except KeyboardInterrupt:
+        print("bem3d: interrupted; no partial result was written", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":
+    sys.exit(main())
