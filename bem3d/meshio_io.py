@@ -145,7 +145,7 @@ def mesh_summary(panels, source="mesh"):
 
 
 def _read_file(path, split):
-    """One file: points (file units), triangles (n, 3), group of each triangle, group names, warnings.
+    """One file: points (file units), triangles (n, 3), each triangle's group, group names, warnings.
 
     With split=False every triangle is in group 0 (the caller names the conductor)."""
     if not path.exists():
@@ -475,9 +475,9 @@ def _point_triangle_distance(p, t):
 
 
 def _segment_distance(p1, q1, p2, q2):
-    """Distance (m) between segments p1q1 and p2q2 (rows; p2q2 of nonzero length, p1q1 may be a point).
+    """Distance (m) between segments p1q1 and p2q2, row by row; p1q1 may be a point, p2q2 not.
 
-    Closest points by clamped parameters, as in Ericson, Real-Time Collision Detection (2005) 5.1.9."""
+    Closest points by clamped parameters (Ericson, Real-Time Collision Detection, 2005, 5.1.9)."""
     d1, d2, w = q1 - p1, q2 - p2, p1 - p2
     a, e, b = _dot(d1, d1), _dot(d2, d2), _dot(d1, d2)
     c, f = _dot(d1, w), _dot(d2, w)

@@ -70,7 +70,7 @@ class CapacitanceResult:
         def block(title, matrix):
             lines = [f"{title} [{prefix}F]", " " * width + "".join(f"{n:>{width}}" for n in self.names)]
             for name, row in zip(self.names, matrix):
-                lines.append(f"{name:<{width}}" + "".join(f"{v / scale:>{width}#.5g}" for v in row))
+                lines.append(f"{name:<{width}}" + "".join(f"{v / scale:>#{width}.5g}" for v in row))
             return lines
 
         lines = block("Maxwell capacitance matrix", self.maxwell) + [""]

@@ -170,7 +170,8 @@ def test_unit_square_quads_area(tmp_path):
     # Two unit squares of quads (area 1 each, closed form), 3 apart along x.
     points = np.array([[0, 0, 0], [1, 0, 0], [1, 1, 0], [0, 1, 0]], dtype=float)
     points = np.vstack([points, points + [3, 0, 0]])
-    path = write(tmp_path / "plates.vtk", points, [("quad", np.array([[0, 1, 2, 3], [4, 5, 6, 7]]))])
+    quads = np.array([[0, 1, 2, 3], [4, 5, 6, 7]])
+    path = write(tmp_path / "plates.vtk", points, [("quad", quads)])
     panels, _ = read_conductors(path)
     np.testing.assert_allclose(panels.conductor_areas(), [1.0, 1.0], rtol=1e-12)
 
@@ -259,7 +260,8 @@ def test_zero_area_triangle(tmp_path):
     points = np.vstack([TET_POINTS, [[0.5, 0.5, 0.0]]])  # on the edge from e_x to e_y
     tris = np.vstack([TET_TRIS, [[1, 4, 2]]])
     path = write(tmp_path / "sliver.ply", points, [("triangle", tris)])
-    with pytest.raises(MeshError, match=r"1 zero-area panel.*panel 4.*\(0\.5, 0\.5, 0\) m") as error:
+    where = r"1 zero-area panel.*panel 4.*\(0\.5, 0\.5, 0\) m"  # centroid of the sliver
+    with pytest.raises(MeshError, match=where) as error:
         read_conductors(path)
     assert_one_line(error, path)
 
