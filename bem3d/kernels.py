@@ -58,6 +58,67 @@ def triangle_potential(x0, x1, x2, v, nrm):
     return log_sum - ad * atan_sum
 
 
+@njit(cache=True)
+def _ray_sector(y0, y1, a, b, th0, th1):
+    # int_{th0}^{th1} sin(th) rho(th)^2 dth for rays from y (in the panel's 2-D frame) ending on
+    # the line through a and b at distance p along its unit normal n (angle beta):
+    # rho = p / cos(th - beta), and the antiderivative of sin(psi + beta) / cos(psi)^2 is
+    # cos(beta) sec(psi) + sin(beta) ln((1 + sin psi) / cos psi).
+    e0, e1 = b[0] - a[0], b[1] - a[1]
+    length = math.sqrt(e0 * e0 + e1 * e1)
+    n0, n1 = e1 / length, -e0 / length
+    p = (a[0] - y0) * n0 + (a[1] - y1) * n1
+    if p < 0.0:
+        n0, n1, p = -n0, -n1, -p
+    beta = math.atan2(n1, n0)
+    cb, sb = math.cos(beta), math.sin(beta)
+    total = 0.0
+    for th, sign in ((th1, 1.0), (th0, -1.0)):
+        psi = th - beta
+        c, s = math.cos(psi), math.sin(psi)
+        # (1 + s) / c loses digits as psi -> -pi/2; c / (1 - s) is the same number
+        ratio = (1.0 + s) / c if s >= 0.0 else c / (1.0 - s)
+        total += sign * (cb / c + sb * math.log(ratio))
+    return p * p * total
+
+
+@njit(cache=True)
+def self_integral(v, nodes, weights):
+    """int_T int_T 1/|x - y| dA_x dA_y (m^3) for one flat triangle v (3, 3), to rounding.
+
+    In the panel's plane the closed-form potential is sum_i t_i(x) int_{edge i} ds/|x - y|
+    (t_i: distance from x to edge line i), so the double integral is
+    sum_i int_{edge i} ds_y int_T t_i(x)/|x - y| dA_x; the inner integral in polar coordinates
+    about y is (1/2) int_0^pi sin(th) rho(th)^2 dth, done in closed form (_ray_sector) on the two
+    sectors whose rays end on the other two edges. The remaining smooth integral along each
+    edge uses Gauss-Legendre `nodes`/`weights` on [0, 1]."""
+    total = 0.0
+    a2 = np.empty(2)
+    b2 = np.empty(2)
+    r2 = np.empty(2)
+    for i in range(3):
+        p, q, r = v[i], v[(i + 1) % 3], v[(i + 2) % 3]
+        t = q - p
+        length = math.sqrt(t[0] * t[0] + t[1] * t[1] + t[2] * t[2])
+        t = t / length
+        w = r - p
+        rx = w[0] * t[0] + w[1] * t[1] + w[2] * t[2]
+        m = w - rx * t
+        ry = math.sqrt(m[0] * m[0] + m[1] * m[1] + m[2] * m[2])
+        # 2-D frame: p = (0, 0), q = (length, 0), r = (rx, ry) with ry > 0
+        a2[0], a2[1] = length, 0.0
+        b2[0], b2[1] = 0.0, 0.0
+        r2[0], r2[1] = rx, ry
+        edge = 0.0
+        for g in range(nodes.shape[0]):
+            s = nodes[g] * length
+            th_v = math.atan2(ry, rx - s)
+            edge += weights[g] * (_ray_sector(s, 0.0, a2, r2, 0.0, th_v)
+                                  + _ray_sector(s, 0.0, r2, b2, th_v, math.pi))
+        total += 0.5 * edge * length
+    return total
+
+
 @njit(cache=True, inline="always")
 def _point_pair_sum(xk, wk, xl, wl):
     s = 0.0
@@ -80,13 +141,14 @@ def _outer_closed_sum(xk, wk, vl, nl):
 
 @njit(cache=True, inline="always")
 def panel_pair_integral(k, l, verts, normals, centroids, radii, areas,
-                        pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid,
+                        pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, self_s, self_w,
                         touch, near, far):
     """Integral over panels k and l of 1/|x - y| dA_x dA_y (m^3), rule chosen by proximity.
 
     Distance is measured in units of s = radius_k + radius_l between centroids:
     beyond `far` one point each; beyond `near` a point rule on both; closer, a point rule on
-    the smaller panel and the closed form on the larger (high order inside `touch` and for k = l).
+    the smaller panel and the closed form on the larger (high order inside `touch`); a panel
+    with itself by `self_integral` with edge rule self_s, self_w.
     """
     a = centroids[k, 0] - centroids[l, 0]
     b = centroids[k, 1] - centroids[l, 1]
@@ -98,25 +160,40 @@ def panel_pair_integral(k, l, verts, normals, centroids, radii, areas,
         return aa / math.sqrt(d2)
     if d2 > (near * s) ** 2:
         return aa * _point_pair_sum(pts_mid[k], w_mid, pts_mid[l], w_mid)
+    if k == l:
+        return self_integral(verts[k], self_s, self_w)
     # outer rule on the smaller panel, closed form over the larger
     o = k
     f = l
     if areas[k] > areas[l]:
         o = l
         f = k
-    if k == l or d2 <= (touch * s) ** 2:
+    if d2 <= (touch * s) ** 2:
         return areas[o] * _outer_closed_sum(pts_hi[o], w_hi, verts[f], normals[f])
     return areas[o] * _outer_closed_sum(pts_near[o], w_near, verts[f], normals[f])
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def _fill_row(k, out, verts, normals, centroids, radii, areas,
-              pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, touch, near, far):
+              pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, self_s, self_w, touch, near, far):
+    # first the one-point value for every pair (a branch-free loop the compiler vectorises),
+    # then the few pairs inside `far` are recomputed with their proper rule
+    ck0, ck1, ck2, ak, rk = centroids[k, 0], centroids[k, 1], centroids[k, 2], areas[k], radii[k]
     for l in range(k + 1):
-        g = panel_pair_integral(k, l, verts, normals, centroids, radii, areas,
-                                pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid,
-                                touch, near, far)
-        out[k, l] = g
+        a = ck0 - centroids[l, 0]
+        b = ck1 - centroids[l, 1]
+        c = ck2 - centroids[l, 2]
+        out[k, l] = ak * areas[l] / math.sqrt(a * a + b * b + c * c)
+    far2 = far * far
+    for l in range(k + 1):
+        a = ck0 - centroids[l, 0]
+        b = ck1 - centroids[l, 1]
+        c = ck2 - centroids[l, 2]
+        s = rk + radii[l]
+        if a * a + b * b + c * c <= far2 * s * s:
+            out[k, l] = panel_pair_integral(k, l, verts, normals, centroids, radii, areas,
+                                            pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid,
+                                            self_s, self_w, touch, near, far)
 
 
 @njit(parallel=True, cache=True)
@@ -134,7 +211,7 @@ def _mirror_lower(out):
 
 @njit(parallel=True, cache=True)
 def assemble_dense(out, verts, normals, centroids, radii, areas,
-                   pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, touch, near, far):
+                   pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, self_s, self_w, touch, near, far):
     """Fill out (n, n) with the Galerkin integrals of 1/|x - y| for every panel pair (m^3).
 
     Only the lower triangle is computed (row by row, contiguous), then mirrored; rows are paired (k, n-1-k) so that both
@@ -143,9 +220,9 @@ def assemble_dense(out, verts, normals, centroids, radii, areas,
     for i in prange((n + 1) // 2):
         i = np.int64(i)          # prange indices may be unsigned; keep index arithmetic signed
         _fill_row(i, out, verts, normals, centroids, radii, areas,
-                  pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, touch, near, far)
+                  pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, self_s, self_w, touch, near, far)
         j = n - 1 - i
         if j != i:
             _fill_row(j, out, verts, normals, centroids, radii, areas,
-                      pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, touch, near, far)
+                      pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, self_s, self_w, touch, near, far)
     _mirror_lower(out)

@@ -145,7 +145,7 @@ def mesh_summary(panels, source="mesh"):
 
 
 def _read_file(path, split):
-    """One file: points (file units), triangles (n, 3), each triangle's group, group names, warnings.
+    """One file: points (file units), triangles (n, 3), their groups, group names, warnings.
 
     With split=False every triangle is in group 0 (the caller names the conductor)."""
     if not path.exists():

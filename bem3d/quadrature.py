@@ -56,3 +56,12 @@ def triangle_rule(degree):
 def map_points(vertices, bary):
     """Physical points (n_panels, m, 3) of a barycentric rule on panels (n_panels, 3, 3)."""
     return np.ascontiguousarray(np.einsum("mj,njk->nmk", bary, vertices))
+
+
+def edge_rule(n):
+    """n Gauss-Legendre points and weights on [0, 1] after the substitution s = 3u^2 - 2u^3,
+    whose vanishing derivative at both ends absorbs the logarithmic end behaviour of the
+    self-panel edge integrals (kernels.self_integral)."""
+    x, w = roots_legendre(n)
+    u = (x + 1) / 2
+    return np.ascontiguousarray(3 * u**2 - 2 * u**3), np.ascontiguousarray(w * 3 * u * (1 - u))

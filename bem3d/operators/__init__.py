@@ -4,7 +4,7 @@ from dataclasses import asdict, dataclass
 
 import numpy as np
 
-from ..quadrature import map_points, triangle_rule
+from ..quadrature import edge_rule, map_points, triangle_rule
 
 
 @dataclass(frozen=True)
@@ -13,15 +13,17 @@ class PairRules:
 
     Beyond `far`: one point per panel. Beyond `near`: a degree-`mid_degree` rule on both.
     Closer: a point rule on the smaller panel and the closed-form triangle potential over the
-    larger, degree `near_degree`, or `touch_degree` inside `touch` and for a panel with itself.
+    larger, degree `near_degree`, or `touch_degree` inside `touch`. A panel with itself is
+    integrated semi-analytically with `self_points` Gauss points along each edge.
     """
 
-    touch: float = 0.6
-    near: float = 1.5
+    touch: float = 1.05
+    near: float = 2.0
     far: float = 10.0
     touch_degree: int = 13
     near_degree: int = 5
     mid_degree: int = 2
+    self_points: int = 16
 
     def as_dict(self):
         return asdict(self)
@@ -33,4 +35,5 @@ def kernel_arguments(panels, rules):
     for degree in (rules.touch_degree, rules.near_degree, rules.mid_degree):
         bary, w = triangle_rule(degree)
         args += [map_points(panels.vertices, bary), w]
+    args += list(edge_rule(rules.self_points))
     return tuple(args) + (float(rules.touch), float(rules.near), float(rules.far))
