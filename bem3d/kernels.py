@@ -142,11 +142,12 @@ def _outer_closed_sum(xk, wk, vl, nl):
 @njit(cache=True, inline="always")
 def panel_pair_integral(k, l, verts, normals, centroids, radii, areas,
                         pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, self_s, self_w,
-                        touch, near, far):
+                        touch, near, mid, far):
     """Integral over panels k and l of 1/|x - y| dA_x dA_y (m^3), rule chosen by proximity.
 
     Distance is measured in units of s = radius_k + radius_l between centroids:
-    beyond `far` one point each; beyond `near` a point rule on both; closer, a point rule on
+    beyond `far` one point each; beyond `mid` the low (mid) rule on both; beyond `near` the
+    near rule on both; closer, a point rule on
     the smaller panel and the closed form on the larger (high order inside `touch`); a panel
     with itself by `self_integral` with edge rule self_s, self_w.
     """
@@ -158,8 +159,10 @@ def panel_pair_integral(k, l, verts, normals, centroids, radii, areas,
     aa = areas[k] * areas[l]
     if d2 > (far * s) ** 2:
         return aa / math.sqrt(d2)
-    if d2 > (near * s) ** 2:
+    if d2 > (mid * s) ** 2:
         return aa * _point_pair_sum(pts_mid[k], w_mid, pts_mid[l], w_mid)
+    if d2 > (near * s) ** 2:
+        return aa * _point_pair_sum(pts_near[k], w_near, pts_near[l], w_near)
     if k == l:
         return self_integral(verts[k], self_s, self_w)
     # outer rule on the smaller panel, closed form over the larger
@@ -175,7 +178,7 @@ def panel_pair_integral(k, l, verts, normals, centroids, radii, areas,
 
 @njit(cache=True, error_model="numpy")
 def _fill_row(k, out, verts, normals, centroids, radii, areas,
-              pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, self_s, self_w, touch, near, far):
+              pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, self_s, self_w, touch, near, mid, far):
     # first the one-point value for every pair (a branch-free loop the compiler vectorises),
     # then the few pairs inside `far` are recomputed with their proper rule
     ck0, ck1, ck2, ak, rk = centroids[k, 0], centroids[k, 1], centroids[k, 2], areas[k], radii[k]
@@ -193,7 +196,7 @@ def _fill_row(k, out, verts, normals, centroids, radii, areas,
         if a * a + b * b + c * c <= far2 * s * s:
             out[k, l] = panel_pair_integral(k, l, verts, normals, centroids, radii, areas,
                                             pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid,
-                                            self_s, self_w, touch, near, far)
+                                            self_s, self_w, touch, near, mid, far)
 
 
 @njit(parallel=True, cache=True)
@@ -211,7 +214,7 @@ def _mirror_lower(out):
 
 @njit(parallel=True, cache=True)
 def assemble_dense(out, verts, normals, centroids, radii, areas,
-                   pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, self_s, self_w, touch, near, far):
+                   pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, self_s, self_w, touch, near, mid, far):
     """Fill out (n, n) with the Galerkin integrals of 1/|x - y| for every panel pair (m^3).
 
     Only the lower triangle is computed (row by row, contiguous), then mirrored; rows are paired (k, n-1-k) so that both
@@ -220,9 +223,9 @@ def assemble_dense(out, verts, normals, centroids, radii, areas,
     for i in prange((n + 1) // 2):
         i = np.int64(i)          # prange indices may be unsigned; keep index arithmetic signed
         _fill_row(i, out, verts, normals, centroids, radii, areas,
-                  pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, self_s, self_w, touch, near, far)
+                  pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, self_s, self_w, touch, near, mid, far)
         j = n - 1 - i
         if j != i:
             _fill_row(j, out, verts, normals, centroids, radii, areas,
-                      pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, self_s, self_w, touch, near, far)
+                      pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, self_s, self_w, touch, near, mid, far)
     _mirror_lower(out)

@@ -6,7 +6,8 @@ x_i = l0_i v0 + l1_i v1 + l2_i v2.
 Symmetric rules of degree 1, 2 and 5 are the tabulated ones (degree 5 is the 7-point rule of
 Radon 1948, also in Dunavant 1985, Int. J. Numer. Meth. Eng. 21); higher degrees use the Stroud
 conical product of Gauss-Jacobi and Gauss-Legendre rules (Stroud 1971, *Approximate Calculation
-of Multiple Integrals*), exact to degree 2n-1 with n^2 points. tests/test_quadrature.py checks
+of Multiple Integrals*), exact to degree 2n-1 with n^2 points. Pairs of touching panels use a
+graded Duffy product rule (Duffy 1982, SIAM J. Numer. Anal. 19) instead of a polynomial one. tests/test_quadrature.py checks
 every rule against exact integrals of barycentric monomials.
 """
 
@@ -53,6 +54,19 @@ def triangle_rule(degree):
     return np.ascontiguousarray(pts), np.ascontiguousarray(w)
 
 
+def graded_rule(n):
+    """n*n-point rule for integrands with logarithmic behaviour at the panel's edges and corners
+    (the potential of a touching panel): the Duffy map from corner 0,
+    x = v0 + u (v1 - v0) + u w (v2 - v1), with Gauss-Legendre in u and w after the substitution
+    t -> 3t^2 - 2t^3, which flattens the integrand at both ends of each coordinate.
+    Barycentric points (n*n, 3) and weights summing to 1."""
+    s, ws = edge_rule(n)
+    u, w = np.meshgrid(s, s, indexing="ij")
+    weights = 2.0 * np.outer(ws, ws) * u              # Duffy Jacobian 2A u, over the area A
+    bary = np.stack([1 - u, u * (1 - w), u * w], axis=-1).reshape(-1, 3)
+    return np.ascontiguousarray(bary), np.ascontiguousarray(weights.reshape(-1))
+
+
 def map_points(vertices, bary):
     """Physical points (n_panels, m, 3) of a barycentric rule on panels (n_panels, 3, 3)."""
     return np.ascontiguousarray(np.einsum("mj,njk->nmk", bary, vertices))
@@ -65,3 +79,4 @@ def edge_rule(n):
     x, w = roots_legendre(n)
     u = (x + 1) / 2
     return np.ascontiguousarray(3 * u**2 - 2 * u**3), np.ascontiguousarray(w * 3 * u * (1 - u))
+

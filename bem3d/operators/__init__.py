@@ -4,23 +4,26 @@ from dataclasses import asdict, dataclass
 
 import numpy as np
 
-from ..quadrature import edge_rule, map_points, triangle_rule
+from ..quadrature import edge_rule, graded_rule, map_points, triangle_rule
 
 
 @dataclass(frozen=True)
 class PairRules:
     """How panel-pair integrals are computed, by centroid distance in units of r_k + r_l.
 
-    Beyond `far`: one point per panel. Beyond `near`: a degree-`mid_degree` rule on both.
+    Beyond `far`: one point per panel. Beyond `mid`: a degree-`mid_degree` rule on both;
+    beyond `near`: the degree-`near_degree` rule on both.
     Closer: a point rule on the smaller panel and the closed-form triangle potential over the
-    larger, degree `near_degree`, or `touch_degree` inside `touch`. A panel with itself is
+    larger: degree `near_degree`, or inside `touch` (panels that share a corner or edge) the
+    graded rule with `touch_points`^2 points. A panel with itself is
     integrated semi-analytically with `self_points` Gauss points along each edge.
     """
 
     touch: float = 1.05
     near: float = 2.0
+    mid: float = 4.0
     far: float = 10.0
-    touch_degree: int = 13
+    touch_points: int = 8
     near_degree: int = 5
     mid_degree: int = 2
     self_points: int = 16
@@ -32,8 +35,8 @@ class PairRules:
 def kernel_arguments(panels, rules):
     """The argument tuple the numba pair kernels take, after the output array."""
     args = [panels.vertices, panels.normals, panels.centroids, panels.radii, panels.areas]
-    for degree in (rules.touch_degree, rules.near_degree, rules.mid_degree):
-        bary, w = triangle_rule(degree)
+    for bary, w in (graded_rule(rules.touch_points), triangle_rule(rules.near_degree),
+                    triangle_rule(rules.mid_degree)):
         args += [map_points(panels.vertices, bary), w]
     args += list(edge_rule(rules.self_points))
-    return tuple(args) + (float(rules.touch), float(rules.near), float(rules.far))
+    return tuple(args) + (float(rules.touch), float(rules.near), float(rules.mid), float(rules.far))
