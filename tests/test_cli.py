@@ -1,0 +1,174 @@
+"""Command line: outputs and their formats, and a one-line error with exit 2 for each bad input."""
+
+import csv
+import json
+import subprocess
+import sys
+
+import meshio
+import numpy as np
+import pytest
+
+from bem3d import shapes
+from bem3d.cli import main
+from bem3d.constants import EPS0
+
+pv = pytest.importorskip("pyvista")
+
+
+def write_mesh(path, parts):
+    """One file per call; parts: list of (points, triangles) merged as one surface."""
+    points, tris = shapes.merge(*parts)
+    meshio.write(path, meshio.Mesh(points, [("triangle", tris)]))
+    return path
+
+
+@pytest.fixture
+def two_spheres(tmp_path):
+    a = write_mesh(tmp_path / "left.stl", [shapes.octahedral_sphere(1.0, 6)])
+    b = write_mesh(tmp_path / "right.stl", [shapes.octahedral_sphere(1.0, 6, center=(3.0, 0, 0))])
+    return a, b
+
+
+def run(argv, capsys):
+    code = main([str(a) for a in argv])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def test_extract_writes_every_output(two_spheres, tmp_path, capsys):
+    out = tmp_path / "res"
+    code, stdout, _ = run(["extract", *two_spheres, "--units", "mm", "--volts", "left=2",
+                           "--out", out], capsys)
+    assert code == 0
+    assert "Maxwell capacitance matrix" in stdout and "caution" in stdout
+    record = json.loads((out / "result.json").read_text())
+    assert record["conductors"] == ["left", "right"]
+    c = np.array(record["maxwell_capacitance_F"])
+    mutual = np.array(record["mutual_capacitance_F"])
+    assert record["panels"] == 2 * 288
+    # a 1 mm sphere is ~0.11 pF (4 pi eps0 a, closed form); coarse mesh, so 2%
+    assert c[0, 0] == pytest.approx(4 * np.pi * EPS0 * 1e-3 * 1.146, rel=2e-2)
+    np.testing.assert_allclose(mutual[0, 1], -c[0, 1])
+    np.testing.assert_allclose(np.diag(mutual), c.sum(axis=1))
+    assert record["potentials_V"] == [2.0, 0.0]
+    np.testing.assert_allclose(record["charges_C"], c @ [2.0, 0.0])
+    assert record["energy_J"] == pytest.approx(0.5 * 4 * c[0, 0])
+    assert set(record["timings_s"]) >= {"assembly", "solve", "total"}
+    assert record["solver"]["solver"] in ("cholesky", "cg-jacobi")
+
+    rows = list(csv.reader((out / "capacitance.csv").open()))
+    assert rows[0] == ["matrix", "conductor", "left", "right"]
+    assert [r[0] for r in rows[1:]] == ["maxwell_F"] * 2 + ["mutual_F"] * 2
+    assert float(rows[1][2]) == pytest.approx(c[0, 0], rel=1e-8)
+
+    spice = (out / "bem3d_capacitance.cir").read_text().splitlines()
+    assert spice[2].startswith(".SUBCKT bem3d_capacitance left right REF")
+    assert spice[-1].startswith(".ENDS")
+    elements = [line.split() for line in spice if line.startswith("C")]
+    assert len(elements) == 3                       # left-right, left-REF, right-REF
+    value = {tuple(e[1:3]): float(e[3]) for e in elements}
+    assert value["left", "right"] == pytest.approx(mutual[0, 1], rel=1e-6)
+
+    surface = pv.read(out / "surface.vtp")
+    assert surface.n_cells == 2 * 288
+    assert set(surface.cell_data.keys()) >= {"sigma", "conductor", "potential"}
+    # sigma integrates to the conductor charges (C/m^2 times m^2)
+    areas = surface.compute_cell_sizes()["Area"]
+    q_left = np.sum((surface.cell_data["sigma"] * areas)[surface.cell_data["conductor"] == 0])
+    assert q_left == pytest.approx(record["charges_C"][0], rel=1e-6)
+
+
+def test_model_file_sets_units_permittivity_volts_and_folder(two_spheres, tmp_path, capsys):
+    model = tmp_path / "pair.toml"
+    model.write_text('length_unit = "mm"\nrelative_permittivity = 2.0\n'
+                     f'meshes = ["{two_spheres[0].name}", "{two_spheres[1].name}"]\n'
+                     '[volts]\nright = -1.5\n[output]\nfolder = "model_out"\nspice_name = "pair"\n')
+    code, _, _ = run(["extract", model, "--quiet"], capsys)
+    assert code == 0
+    record = json.loads((tmp_path / "model_out" / "result.json").read_text())
+    assert record["potentials_V"] == [0.0, -1.5]
+    assert record["solver"]["relative_permittivity"] == 2.0
+    assert (tmp_path / "model_out" / "pair.cir").exists()
+
+
+def test_check_mesh_reports_panels_and_conductors(two_spheres, capsys):
+    code, out, _ = run(["check-mesh", *two_spheres, "--units", "mm"], capsys)
+    assert code == 0
+    assert "panels: 576" in out and "left: 288 panels" in out and "problems: none" in out
+
+
+def corrupt(points, tris, how):
+    p, t = points.copy(), tris.copy()
+    if how == "nan":
+        p[3, 1] = np.nan
+    elif how == "zero-area":
+        t[5] = [t[5, 0], t[5, 0], t[5, 1]]
+    elif how == "duplicate":
+        t = np.vstack([t, t[7][::-1]])
+    return p, t
+
+
+BAD_MESHES = [("nan", "NaN"), ("zero-area", "zero-area"), ("duplicate", "duplicate")]
+
+
+@pytest.mark.parametrize("how, words", BAD_MESHES)
+def test_bad_mesh_gives_exit_2_one_line_and_no_files(tmp_path, capsys, how, words):
+    p, t = corrupt(*shapes.octahedral_sphere(1.0, 4), how)
+    path = tmp_path / "bad.vtu"
+    meshio.write(path, meshio.Mesh(p, [("triangle", t)]))
+    out = tmp_path / "res"
+    code, stdout, err = run(["extract", path, "--out", out], capsys)
+    assert code == 2
+    lines = err.strip().splitlines()
+    assert len(lines) == 1 and "bad.vtu" in lines[0] and words.lower() in lines[0].lower()
+    assert "Traceback" not in err
+    assert not out.exists()
+
+
+@pytest.mark.parametrize("argv, words", [
+    (["extract", "{d}/missing.stl"], "missing.stl"),
+    (["extract", "{d}/garbage.stl"], "garbage.stl"),
+    (["extract", "{d}/lines.vtu"], "lines.vtu"),
+    (["extract", "{d}/a.stl", "{d}/touching.stl"], "touch"),
+    (["extract", "{d}/a.stl", "--units", "furlong"], "furlong"),
+    (["extract", "{d}/a.stl", "--volts", "nobody=3"], "nobody"),
+    (["extract", "{d}/a.stl", "--volts", "a=high"], "a=high"),
+    (["extract", "{d}/broken.toml"], "broken.toml"),
+    (["extract", "{d}/unknown_key.toml"], "colour"),
+    (["extract", "{d}/a.stl", "--eps-r", "-3"], "permittivity"),
+])
+def test_bad_input_gives_exit_2_one_line_and_no_files(tmp_path, capsys, argv, words):
+    write_mesh(tmp_path / "a.stl", [shapes.octahedral_sphere(1.0, 4)])
+    write_mesh(tmp_path / "touching.stl", [shapes.octahedral_sphere(1.0, 4, center=(2.0, 0, 0))])
+    (tmp_path / "garbage.stl").write_bytes(bytes(range(256)) * 7)
+    meshio.write(tmp_path / "lines.vtu", meshio.Mesh(np.eye(3), [("line", np.array([[0, 1], [1, 2]]))]))
+    (tmp_path / "broken.toml").write_text('meshes = ["a.stl"\n')
+    (tmp_path / "unknown_key.toml").write_text('meshes = ["a.stl"]\ncolour = "red"\n')
+    out = tmp_path / "res"
+    code, _, err = run([a.format(d=tmp_path) for a in argv] + ["--out", str(out)], capsys)
+    assert code == 2
+    lines = err.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("bem3d: error:"), err
+    assert words in lines[0]
+    assert not out.exists()
+
+
+def test_console_script_exit_code_and_debug_traceback(tmp_path):
+    cmd = [sys.executable, "-m", "bem3d.cli", "extract", str(tmp_path / "none.stl")]
+    quiet = subprocess.run(cmd, capture_output=True, text=True)
+    assert quiet.returncode == 2 and "Traceback" not in quiet.stderr
+    loud = subprocess.run(cmd[:3] + ["--debug"] + cmd[3:], capture_output=True, text=True)
+    assert "Traceback" in loud.stderr
+
+
+def test_demo_runs_end_to_end(tmp_path, capsys):
+    code, out, _ = run(["demo", tmp_path / "demo"], capsys)
+    assert code == 0
+    record = json.loads((tmp_path / "demo" / "result.json").read_text())
+    assert record["conductors"] == ["sense_a", "sense_b", "drive", "guard", "lid"]
+    c = np.array(record["maxwell_capacitance_F"])
+    # the layout is mirror-symmetric in x: both sense pads see the drive pad alike
+    assert c[0, 2] == pytest.approx(c[1, 2], rel=1e-4)
+    assert c[0, 0] == pytest.approx(c[1, 1], rel=1e-4)
+    assert str((tmp_path / "demo").resolve()) in out
