@@ -2,8 +2,9 @@
 
 Leaves of the package: they see only float arrays, never files or conductors.
 The closed-form potential of a uniformly charged triangle follows Wilton, Rao, Glisson,
-Schaubert, Al-Bundak & Butler (1984), IEEE Trans. Antennas Propag. AP-32(3), 276-281, eq. (5)-(8),
-written with cancellation-free forms of R + l for points behind an edge.
+Schaubert, Al-Bundak & Butler (1984), IEEE Trans. Antennas Propag. AP-32(3), 276-281, and its
+field Graglia (1993), IEEE Trans. Antennas Propag. AP-41(10), 1448-1455, written with
+cancellation-free forms of R + l for points behind an edge.
 """
 
 import math
@@ -13,25 +14,39 @@ from numba import njit, prange
 
 
 @njit(cache=True, inline="always")
-def _r_plus_l(R, l, r0sq):
-    # R + l loses all digits when l ~ -R (point behind the edge, near its line); use the
-    # identity R + l = (R^2 - l^2) / (R - l) = r0^2 / (R - l) there.
-    if l >= 0.0:
-        return R + l
-    return r0sq / (R - l)
+def _edge_log(rm, rp, lm, lp, r0sq, length):
+    # ln((R+ + l+) / (R- + l-)) = int_edge ds / |x - y|, written so that no R + l with l ~ -R
+    # is formed (it loses every digit behind an edge): R + l = r0^2 / (R - l) there.
+    # On an edge or corner the edge log is infinite (so is the field of a uniform panel);
+    # x is kept a hair (1e-12 of the edge) away so that such points give a large finite value.
+    hair = 1e-12 * length
+    if lm >= 0.0:
+        return math.log((rp + lp) / max(rm + lm, hair))
+    if lp <= 0.0:
+        return math.log((rm - lm) / max(rp - lp, hair))
+    return math.log((rp + lp) * (rm - lm) / max(r0sq, hair * hair))
 
 
 @njit(cache=True)
-def triangle_potential(x0, x1, x2, v, nrm):
-    """Integral over triangle v (3, 3) of 1/|x - y| dA_y (metres), for x = (x0, x1, x2).
+def triangle_integrals(x0, x1, x2, v, nrm):
+    """Potential and field integrals of a unit uniform charge on triangle v (3, 3) at x.
 
-    nrm is the unit normal by the right-hand rule on v's corner order. Exact for any x,
-    including points on the triangle, its edges and their extensions."""
+    Returns (phi, g0, g1, g2, omega): phi = int_T dA_y / |x - y| (m), the vector
+    g = -grad phi = int_T (x - y) / |x - y|^3 dA_y (dimensionless), and omega, the solid
+    angle (sr) the triangle subtends at x, positive seen from the side its normal points to.
+    nrm is the unit normal by the right-hand rule on v's corner order. Exact for any x
+    (Wilton et al. 1984 for phi; Graglia 1993, IEEE Trans. AP-41(10), for g:
+    g = sum_i u_i f_i + sign(d) n omega_abs, u_i the outward edge normals, f_i the edge logs).
+    In the plane of the triangle the normal part of g is the principal value (the mean of
+    the two sides, which differ by 2 pi)."""
     n0, n1, n2 = nrm[0], nrm[1], nrm[2]
     d = (x0 - v[0, 0]) * n0 + (x1 - v[0, 1]) * n1 + (x2 - v[0, 2]) * n2
     ad = abs(d)
     log_sum = 0.0
     atan_sum = 0.0
+    g0 = 0.0
+    g1 = 0.0
+    g2 = 0.0
     for e in range(3):
         p = v[e]
         q = v[(e + 1) % 3]
@@ -50,12 +65,33 @@ def triangle_potential(x0, x1, x2, v, nrm):
         rm = math.sqrt(pr0 * pr0 + pr1 * pr1 + pr2 * pr2)
         rp = math.sqrt(qr0 * qr0 + qr1 * qr1 + qr2 * qr2)
         r0sq = p0 * p0 + d * d
+        f = _edge_log(rm, rp, lm, lp, r0sq, length)
+        g0 += u0 * f
+        g1 += u1 * f
+        g2 += u2 * f
         if abs(p0) > 1e-14 * length:
-            log_sum += p0 * math.log(_r_plus_l(rp, lp, r0sq) / _r_plus_l(rm, lm, r0sq))
+            log_sum += p0 * f
             if ad > 0.0:
                 atan_sum += (math.atan(p0 * lp / (r0sq + ad * rp))
                              - math.atan(p0 * lm / (r0sq + ad * rm)))
-    return log_sum - ad * atan_sum
+    sign = 0.0
+    if d > 0.0:
+        sign = 1.0
+    elif d < 0.0:
+        sign = -1.0
+    g0 += sign * n0 * atan_sum
+    g1 += sign * n1 * atan_sum
+    g2 += sign * n2 * atan_sum
+    return log_sum - ad * atan_sum, g0, g1, g2, sign * atan_sum
+
+
+@njit(cache=True, inline="always")
+def triangle_potential(x0, x1, x2, v, nrm):
+    """Integral over triangle v (3, 3) of 1/|x - y| dA_y (metres), for x = (x0, x1, x2).
+
+    nrm is the unit normal by the right-hand rule on v's corner order. Exact for any x,
+    including points on the triangle, its edges and their extensions."""
+    return triangle_integrals(x0, x1, x2, v, nrm)[0]
 
 
 @njit(cache=True)
