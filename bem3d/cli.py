@@ -6,7 +6,10 @@ import sys
 import time
 from pathlib import Path
 
-from .errors import Bem3dError
+import numpy as np
+
+from .constants import LENGTH_UNITS
+from .errors import Bem3dError, ModelError
 
 EXIT_BAD_INPUT = 2
 
@@ -35,6 +38,25 @@ def _parser():
                    help="direct (Cholesky), cg (conjugate gradients) or auto by size")
     p.add_argument("--tol", type=float, default=1e-7,
                    help="CG relative residual; capacitance error is about its square")
+    p.add_argument("--quiet", action="store_true", help="print nothing but errors")
+
+    p = sub.add_parser("field", help="capacitance plus potential, field and energy density "
+                                     "on a grid, slices and points")
+    _add_model_options(p)
+    p.add_argument("--box", type=float, nargs=6, metavar=("XMIN", "YMIN", "ZMIN", "XMAX", "YMAX", "ZMAX"),
+                   help="field box in the mesh unit (default: the model's box plus a margin)")
+    p.add_argument("--margin", type=float, default=0.5,
+                   help="automatic box: margin as a fraction of the model's largest size")
+    res = p.add_mutually_exclusive_group()
+    res.add_argument("--spacing", type=float, help="grid spacing in the mesh unit")
+    res.add_argument("--points", type=int, nargs="+", metavar="N", default=[41],
+                     help="grid points per axis: N or NX NY NZ (default 41)")
+    p.add_argument("--slice", action="append", default=[], metavar="AXIS=VALUE",
+                   help="a slice plane such as z=0.5 (mesh unit); repeatable")
+    p.add_argument("--at", type=Path, metavar="CSV", help="CSV of x, y, z points (mesh unit)")
+    p.add_argument("--unit-fields", action="store_true",
+                   help="also write each conductor's field at 1 V (others 0 V) for superposition")
+    p.add_argument("--png", action="store_true", help="render surface_charge.png and field_slice.png")
     p.add_argument("--quiet", action="store_true", help="print nothing but errors")
 
     p = sub.add_parser("demo", help="run the shipped sensor-head demo end to end")
@@ -88,6 +110,68 @@ def _run_extract(model, solver="auto", tol=1e-7, quiet=False):
     return files
 
 
+def _field_request(args, model):
+    from .constants import LENGTH_UNITS
+    from .field_map import FieldRequest
+
+    scale = LENGTH_UNITS[model.length_unit]
+    slices = []
+    for item in args.slice:
+        axis, sep, value = item.partition("=")
+        try:
+            slices.append(("xyz".index(axis.strip().lower()), float(value) * scale))
+        except ValueError:
+            raise ModelError(f"--slice: expected x=, y= or z= and a number, got '{item}'") from None
+        if not sep:
+            raise ModelError(f"--slice: expected AXIS=VALUE, got '{item}'")
+    if len(args.points) not in (1, 3):
+        raise ModelError("--points takes one number or three (NX NY NZ)")
+    box = None
+    if args.box:
+        box = (np.array(args.box[:3]) * scale, np.array(args.box[3:]) * scale)
+    return FieldRequest(box=box, margin=args.margin, points=tuple(args.points),
+                        spacing=None if args.spacing is None else args.spacing * scale,
+                        slices=slices, point_file=args.at, point_scale=scale,
+                        unit_fields=args.unit_fields, png=args.png)
+
+
+def _run_field(model, request, quiet=False):
+    from .field_map import FIELD_CAUTION, map_fields
+    from .pipeline import extract
+    from .units import format_quantity
+
+    start = time.perf_counter()
+    panels, result, warnings = extract(model, progress=not quiet)
+    result.timings_s["total"] = time.perf_counter() - start
+    record, files = map_fields(panels, result, model, request, warnings, progress=not quiet)
+    if quiet:
+        return files
+    for w in warnings + record.get("picture_problems", []):
+        print(f"warning: {w}", file=sys.stderr)
+    print(result.table())
+    w = record["energy_J"]
+    print("\nstored energy at the given potentials")
+    rows = [("1/2 V^T C V", record["energy_J"]), ("1/2 sum Q V", record["energy_from_charges_J"]),
+            ("grid integral of 1/2 eps |E|^2", record["energy_grid_J"]),
+            ("outside the grid (surface identity)", record["energy_outside_grid_J"]),
+            ("outside the grid (monopole + dipole)", record["energy_outside_grid_multipole_J"]),
+            ("grid + outside", record["energy_grid_plus_outside_J"])]
+    for label, value in rows:
+        share = f"{value / w:8.2%}" if w else ""
+        print(f"  {label:<38}{format_quantity(value, 'J'):>14}{share}")
+    print("peak |E| on each conductor (panel centroids; edges are higher)")
+    scale, unit = LENGTH_UNITS[model.length_unit], model.length_unit
+    for name, peak in record["peak_field_V_per_m"].items():
+        at = ", ".join(f"{x / scale:.4g}" for x in peak["at_m"])
+        print(f"  {name:<14}{peak['value'] / 1e6:10.4g} kV/mm at ({at}) {unit}")
+    print("force on each conductor [N]")
+    for name, f in record["force_N"].items():
+        print(f"  {name:<14}" + "".join(f"{c:>12.4g}" for c in f))
+    print(f"caution: {FIELD_CAUTION}")
+    print(f"wrote {', '.join(f.name for f in files)} to {model.output_folder}")
+    return files
+
+
 def _check_mesh(args):
     from .meshio_io import mesh_summary, read_conductors
 
@@ -138,6 +222,10 @@ def main(argv=None):
         if args.command == "extract":
             _run_extract(_model_from_args(args), solver=args.solver, tol=args.tol,
                          quiet=args.quiet)
+            return 0
+        if args.command == "field":
+            model = _model_from_args(args)
+            _run_field(model, _field_request(args, model), quiet=args.quiet)
             return 0
         if args.command == "check-mesh":
             return _check_mesh(args)

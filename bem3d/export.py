@@ -103,26 +103,76 @@ def surface_polydata(panels, cell_arrays):
     return mesh
 
 
-def write_surface(panels, result, target):
-    """surface.vtp: sigma (C/m^2) at the given potentials, conductor id, conductor potential (V)."""
-    mesh = surface_polydata(panels, {
-        "sigma": result.panel_sigma(),
-        "conductor": panels.owner.astype(np.int32),
-        "potential": result.potentials[panels.owner],
-    })
+def write_surface(panels, result, target, extra_cells=None):
+    """surface.vtp: sigma (C/m^2) at the given potentials, conductor id, conductor potential (V),
+    plus any extra cell arrays."""
+    cells = {"sigma": result.panel_sigma(), "conductor": panels.owner.astype(np.int32),
+             "potential": result.potentials[panels.owner]}
+    cells.update(extra_cells or {})
+    with atomic_path(target) as tmp:
+        surface_polydata(panels, cells).save(tmp)
+
+
+def image_data(grid, point_arrays):
+    """pyvista ImageData of a fields.Grid (m) with point arrays in the grid's point order."""
+    import pyvista as pv
+
+    image = pv.ImageData(dimensions=grid.shape, spacing=tuple(grid.spacing),
+                         origin=tuple(grid.origin))
+    for name, values in point_arrays.items():
+        image.point_data[name] = values
+    return image
+
+
+def write_image(grid, point_arrays, target):
+    """A grid of point values as VTK ImageData (.vti)."""
+    with atomic_path(target) as tmp:
+        image_data(grid, point_arrays).save(tmp)
+
+
+def write_slice(grid, point_arrays, target):
+    """A one-point-thick grid as VTK PolyData (.vtp) of quads, point arrays in grid order."""
+    import pyvista as pv
+
+    nb, nc = [n for n in grid.shape if n > 1]
+    ids = np.arange(nb * nc).reshape(nc, nb)          # the grid's order: first axis fastest
+    corners = [ids[:-1, :-1], ids[:-1, 1:], ids[1:, 1:], ids[1:, :-1]]
+    quads = np.column_stack([np.full(corners[0].size, 4)] + [c.ravel() for c in corners])
+    mesh = pv.PolyData(grid.points(), quads.ravel())
+    for name, values in point_arrays.items():
+        mesh.point_data[name] = values
     with atomic_path(target) as tmp:
         mesh.save(tmp)
 
 
-def write_outputs(folder, panels, result, model, warnings=()):
-    """Write result.json, capacitance.csv, <spice_name>.cir and surface.vtp; return their paths."""
+def write_point_table(points, columns, target):
+    """CSV: x_m, y_m, z_m, then one column per (name, values) pair; vectors get _x/_y/_z."""
+    names, data = ["x_m", "y_m", "z_m"], [points]
+    for name, values in columns.items():
+        values = np.asarray(values)
+        if values.ndim == 2:
+            names += [f"{name}_{c}" for c in "xyz"]
+        else:
+            names.append(name)
+            values = values[:, None]
+        data.append(values)
+    table = np.hstack(data)
+    lines = [",".join(names)] + [",".join(f"{v:.9e}" for v in row) for row in table]
+    _write_text(target, "\n".join(lines) + "\n")
+
+
+def write_outputs(folder, panels, result, model, warnings=(), extra=None, extra_cells=None):
+    """Write result.json, capacitance.csv, <spice_name>.cir and surface.vtp; return their paths.
+
+    extra: more keys for result.json; extra_cells: more cell arrays for surface.vtp."""
     folder = Path(folder)
     files = [folder / "result.json", folder / "capacitance.csv",
              folder / f"{spice_node(model.spice_name)}.cir", folder / "surface.vtp"]
-    extra = {"length_unit_of_meshes": model.length_unit,
-             "meshes": [str(m) for m in model.meshes], "warnings": list(warnings)}
-    write_json(result, files[0], extra)
+    record = {"length_unit_of_meshes": model.length_unit,
+              "meshes": [str(m) for m in model.meshes], "warnings": list(warnings)}
+    record.update(extra or {})
+    write_json(result, files[0], record)
     write_csv(result, files[1])
     write_spice(result, files[2], model.spice_name)
-    write_surface(panels, result, files[3])
+    write_surface(panels, result, files[3], extra_cells)
     return files

@@ -499,3 +499,9 @@ def _segment_crosses(p, q, t):
     crosses = (dp * dq <= 0) & (dp != dq)
     s = np.divide(dp, dp - dq, out=np.zeros_like(dp), where=crosses)
     return crosses & _inside(p + s[:, None] * (q - p), t, n)
+
+
+def closed_conductors(panels):
+    """(n_conductors,) bool: True where a conductor's surface is closed (no boundary edges)."""
+    finite = np.isfinite(panels.vertices).all(axis=(1, 2))
+    return _boundary_edges(panels, finite) == 0

@@ -2,7 +2,8 @@
 
 import numpy as np
 
-_PREFIXES = [(1e-18, "a"), (1e-15, "f"), (1e-12, "p"), (1e-9, "n"), (1e-6, "u"), (1e-3, "m"), (1.0, "")]
+_PREFIXES = [(1e-18, "a"), (1e-15, "f"), (1e-12, "p"), (1e-9, "n"), (1e-6, "u"), (1e-3, "m"),
+             (1.0, ""), (1e3, "k"), (1e6, "M"), (1e9, "G")]
 
 
 def prefix_for(values):

@@ -1,0 +1,235 @@
+"""The `field` job: fields on a grid, slices and listed points, energy balance, peaks, forces."""
+
+import sys
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from .constants import EPS0
+from .errors import ModelError, ResourceError
+from .export import (atomic_path, surface_polydata, write_image, write_outputs,
+                     write_point_table, write_slice)
+from .fields import (Grid, conductor_forces, energy_balance, evaluate, peak_fields,
+                     surface_fields)
+
+#: Largest number of grid points a run may ask for (each point costs ~100 bytes per excitation).
+MAX_GRID_POINTS = 20_000_000
+#: Air breaks down near 3 kV/mm at sea level (common practice, no source).
+AIR_BREAKDOWN_V_PER_M = 3e6
+FIELD_CAUTION = ("Air breaks down near 3 kV/mm at sea level (common practice, no source); "
+                 "edges and corners concentrate the field and flat-panel meshes under-resolve "
+                 "them, so true peaks are higher than shown. Final clearances follow the "
+                 "applicable codes and licensed practice.")
+
+
+@dataclass
+class FieldRequest:
+    """Where to evaluate the field. Lengths in metres.
+
+    box: (lo (3,), hi (3,)) or None for the model's bounding box widened by `margin` times its
+    largest size; spacing (m) or points (nx, ny, nz) set the resolution; slices: [(axis index,
+    coordinate)]; point_file: CSV of x, y, z in the mesh unit (scaled by `point_scale`)."""
+
+    box: tuple | None = None
+    margin: float = 0.5
+    points: tuple = (41, 41, 41)
+    spacing: float | None = None
+    slices: list = field(default_factory=list)
+    point_file: Path | None = None
+    point_scale: float = 1.0
+    unit_fields: bool = False
+    png: bool = False
+
+    def grid(self, panels):
+        v = panels.vertices.reshape(-1, 3)
+        if self.box is None:
+            lo, hi = v.min(axis=0), v.max(axis=0)
+            pad = self.margin * (hi - lo).max()
+            lo, hi = lo - pad, hi + pad
+        else:
+            lo, hi = (np.asarray(b, float) for b in self.box)
+            if np.any(hi <= lo):
+                raise ModelError("--box: each maximum must exceed its minimum")
+        if self.spacing is not None:
+            if not self.spacing > 0:
+                raise ModelError("--spacing must be positive")
+            counts = np.floor((hi - lo) / self.spacing + 1e-9).astype(int) + 1
+            hi = lo + (counts - 1) * self.spacing
+        else:
+            counts = np.asarray(self.points, int)
+            if counts.size == 1:
+                counts = np.repeat(counts, 3)
+            if np.any(counts < 2):
+                raise ModelError("--points: at least 2 per axis")
+        total = int(np.prod(counts))
+        if total > MAX_GRID_POINTS:
+            raise ResourceError(f"the grid would have {total:,} points (limit "
+                                f"{MAX_GRID_POINTS:,}); use a coarser --spacing or fewer --points")
+        return Grid.box(lo, hi, counts)
+
+
+def read_points(path, scale):
+    """x, y, z rows (m) from a CSV file; a first line that is not numbers is a header."""
+    path = Path(path)
+    try:
+        lines = path.read_text(encoding="utf-8").splitlines()
+    except (OSError, UnicodeDecodeError) as err:
+        raise ModelError(f"{path}: cannot read point list ({err})") from None
+    rows = []
+    for number, line in enumerate(lines, 1):
+        if not line.strip():
+            continue
+        parts = line.replace(";", ",").split(",")
+        try:
+            values = [float(p) for p in parts[:3]]
+        except ValueError:
+            if rows or number > 1:
+                raise ModelError(f"{path}:{number}: expected three numbers x, y, z") from None
+            continue
+        if len(values) != 3 or not np.all(np.isfinite(values)):
+            raise ModelError(f"{path}:{number}: expected three finite numbers x, y, z")
+        rows.append(values)
+    if not rows:
+        raise ModelError(f"{path}: no points")
+    return np.array(rows) * scale
+
+
+def _slice_grid(grid, axis, value):
+    lo = grid.origin.copy()
+    hi = grid.origin + grid.spacing * (np.array(grid.shape) - 1)
+    if not lo[axis] <= value <= hi[axis]:
+        raise ModelError(f"--slice {'xyz'[axis]}={value:g} m lies outside the field box "
+                         f"({lo[axis]:g} .. {hi[axis]:g} m)")
+    lo[axis] = hi[axis] = value
+    shape = list(grid.shape)
+    shape[axis] = 1
+    return Grid.box(lo, hi, shape)
+
+
+def _progress_bar(total, label, enabled):
+    if not enabled:
+        return None, lambda: None
+    from tqdm import tqdm
+
+    bar = tqdm(total=total, desc=label, unit="pt", unit_scale=True, file=sys.stderr,
+               leave=False, disable=None)
+    state = {"done": 0}
+
+    def update(done):
+        bar.update(done - state["done"])
+        state["done"] = done
+
+    return update, bar.close
+
+
+def _fields_at(panels, sigma, points, eps_r, label, progress):
+    update, close = _progress_bar(len(points), label, progress)
+    try:
+        return evaluate(panels, sigma, points, eps_r, progress=update)
+    finally:
+        close()
+
+
+def _point_arrays(fields, eps, names, unit_fields):
+    """VTK point arrays: the given excitation, then optionally each conductor at 1 V."""
+    arrays = {"phi": fields.phi[:, 0], "E": fields.E[:, 0],
+              "E_magnitude": np.linalg.norm(fields.E[:, 0], axis=1),
+              "energy_density": fields.energy_density(eps)[:, 0],
+              "inside_conductor": fields.inside.astype(np.uint8)}
+    if unit_fields:
+        for j, name in enumerate(names, start=1):
+            arrays[f"phi_unit_{name}"] = fields.phi[:, j]
+            arrays[f"E_unit_{name}"] = fields.E[:, j]
+    return arrays
+
+
+def map_fields(panels, result, model, request, warnings=(), progress=False):
+    """Evaluate, balance and write everything for the `field` job; returns (record, files).
+
+    record holds the keys added to result.json (energies J, peaks V/m, forces N, torques N m)."""
+    eps_r = model.relative_permittivity
+    eps = EPS0 * eps_r
+    folder = Path(model.output_folder)
+    sigma = result.panel_sigma()[:, None]
+    if request.unit_fields:
+        sigma = np.hstack([sigma, result.sigma])
+    grid = request.grid(panels)
+    grid_fields = _fields_at(panels, sigma, grid.points(), eps_r, "grid", progress)
+    boundary = grid.boundary()
+    boundary_fields = _fields_at(panels, sigma[:, :1], boundary[0], eps_r, "box faces", progress)
+    balance = energy_balance(panels, result, grid, grid_fields, boundary_fields, boundary)
+
+    surface = surface_fields(panels, result.panel_sigma(), eps_r)
+    force, torque = conductor_forces(panels, surface)
+    peaks = peak_fields(panels, surface)
+    record = dict(balance)
+    record.update({
+        "grid": {"origin_m": grid.origin.tolist(), "spacing_m": grid.spacing.tolist(),
+                 "shape": list(grid.shape)},
+        "peak_field_V_per_m": {n: {"value": v, "at_m": at}
+                               for n, (v, at) in zip(panels.names, peaks)},
+        "force_N": {n: f.tolist() for n, f in zip(panels.names, force)},
+        "torque_about_centroid_N_m": {n: t.tolist() for n, t in zip(panels.names, torque)},
+        "field_caution": FIELD_CAUTION,
+    })
+    face_max = np.linalg.norm(surface.face_fields, axis=2).max(axis=1)
+    files = write_outputs(folder, panels, result, model, warnings, record,
+                          {"E_normal": surface.normal_field, "E_face_max": face_max,
+                           "force_density": surface.panel_force / panels.areas[:, None]})
+    target = folder / "field.vti"
+    write_image(grid, _point_arrays(grid_fields, eps, panels.names, request.unit_fields), target)
+    files.append(target)
+
+    slices = list(request.slices)
+    if request.png and not slices:       # a picture needs a slice: the box's middle in z
+        slices = [(2, float(grid.origin[2] + grid.spacing[2] * (grid.shape[2] - 1) / 2))]
+    slice_outputs = []
+    for axis, value in slices:
+        sgrid = _slice_grid(grid, axis, value)
+        sfields = _fields_at(panels, sigma, sgrid.points(), eps_r, "slice", progress)
+        target = folder / f"slice_{'xyz'[axis]}_{value:.6g}.vtp"
+        arrays = _point_arrays(sfields, eps, panels.names, request.unit_fields)
+        write_slice(sgrid, arrays, target)
+        files.append(target)
+        slice_outputs.append((target, axis, arrays))
+
+    if request.point_file is not None:
+        points = read_points(request.point_file, request.point_scale)
+        pfields = evaluate(panels, sigma, points, eps_r)
+        target = folder / "points.csv"
+        write_point_table(points, {"phi_V": pfields.phi[:, 0], "E_V_per_m": pfields.E[:, 0],
+                                   "energy_density_J_per_m3": pfields.energy_density(eps)[:, 0],
+                                   "inside_conductor": pfields.inside.astype(int)}, target)
+        files.append(target)
+
+    if request.png:
+        problems = []
+        files += _pictures(panels, result, folder, slice_outputs[0], problems)
+        record["picture_problems"] = problems     # shown on the console; numbers are written
+    return record, files
+
+
+def _pictures(panels, result, folder, first_slice, problems):
+    """surface_charge.png and the |E| picture of the first slice; a renderer failure is a
+    warning, not a failed run (the numbers are already written)."""
+    import pyvista as pv
+
+    from .pictures import render_slice, render_surface_charge
+
+    surface = surface_polydata(panels, {})
+    slice_path, axis, arrays = first_slice
+    written = []
+    jobs = [(folder / "surface_charge.png",
+             lambda tmp: render_surface_charge(surface, result.panel_sigma(), tmp)),
+            (folder / "field_slice.png",
+             lambda tmp: render_slice(surface, pv.read(slice_path), axis, arrays["E_magnitude"],
+                                      tmp, "field magnitude", "V/m"))]
+    for target, job in jobs:
+        try:
+            with atomic_path(target) as tmp:
+                job(tmp)
+            written.append(target)
+        except Exception as err:       # noqa: BLE001 - any renderer failure
+            problems.append(f"{target.name} not rendered: {err}")
+    return written

@@ -1,0 +1,234 @@
+"""Potential, field, energy density, surface fields, forces and the energy balance.
+
+Everything here starts from solved panel charges (results.CapacitanceResult.sigma) and uses the
+same triangle integrals as the operator (kernels.evaluate_points): closed forms near a panel,
+Gauss rules farther out, one point per panel far away.
+"""
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from .constants import EPS0
+from .kernels import evaluate_points
+from .meshio_io import closed_conductors
+from .quadrature import map_points, triangle_rule
+
+
+@dataclass(frozen=True)
+class FieldRules:
+    """Distances (in panel radii) at which point evaluation changes rule; see evaluate_points."""
+
+    near: float = 2.0
+    mid: float = 4.0
+    far: float = 12.0
+    near_degree: int = 5
+    mid_degree: int = 2
+
+
+@dataclass
+class PointFields:
+    """Fields at m points for k excitations: phi (m, k) V, E (m, k, 3) V/m, inside (m,) bool."""
+
+    phi: np.ndarray
+    E: np.ndarray
+    inside: np.ndarray
+
+    def energy_density(self, eps):
+        """1/2 eps |E|^2 (J/m^3), (m, k)."""
+        return 0.5 * eps * np.sum(self.E**2, axis=-1)
+
+
+def evaluate(panels, sigma, points, eps_r=1.0, rules=FieldRules(), chunk=20000, progress=None):
+    """phi and E at points (m, 3) in metres from panel charge densities sigma (n, k) in C/m^2.
+
+    A point inside a closed conductor is flagged in `inside` (its field is ~0 there).
+    progress, if given, is called with the number of points done after each chunk."""
+    sigma = np.ascontiguousarray(np.atleast_2d(np.asarray(sigma, float).T).T)
+    points = np.ascontiguousarray(np.asarray(points, float).reshape(-1, 3))
+    k = sigma.shape[1]
+    closed = closed_conductors(panels)[panels.owner].astype(np.float64)
+    bary_near, w_near = triangle_rule(rules.near_degree)
+    bary_mid, w_mid = triangle_rule(rules.mid_degree)
+    pts_near = map_points(panels.vertices, bary_near)
+    pts_mid = map_points(panels.vertices, bary_mid)
+    phi = np.zeros((len(points), k))
+    grad = np.zeros((len(points), k, 3))
+    winding = np.zeros(len(points))
+    for start in range(0, len(points), chunk):       # bounded scratch, steady progress
+        sl = slice(start, start + chunk)
+        evaluate_points(points[sl], sigma, closed, panels.vertices, panels.normals,
+                        panels.centroids, panels.radii, panels.areas, pts_mid, w_mid,
+                        pts_near, w_near, rules.near, rules.mid, rules.far,
+                        phi[sl], grad[sl], winding[sl])
+        if progress:
+            progress(min(start + chunk, len(points)))
+    scale = 1.0 / (4.0 * math.pi * EPS0 * eps_r)
+    return PointFields(phi * scale, grad * scale, winding > 0.5)
+
+
+@dataclass
+class SurfaceFields:
+    """Per-panel fields for one excitation: sigma (C/m^2), E_n = sigma/eps (V/m) on the normal
+    side of a closed conductor, the field on each face of the panel (n, 2, 3) V/m, and the force
+    on each panel (n, 3) N."""
+
+    sigma: np.ndarray
+    normal_field: np.ndarray
+    face_fields: np.ndarray
+    panel_force: np.ndarray
+
+
+def surface_fields(panels, sigma, eps_r=1.0, rules=FieldRules()):
+    """Fields and forces on the panels for charge density sigma (n,) C/m^2.
+
+    At a panel's centroid the mean of the fields on its two faces is the principal value E_pv;
+    the faces see E_pv +- sigma/(2 eps) n. The force on the panel's charge is sigma A E_pv
+    (the Maxwell stress sigma^2/(2 eps) n on a closed conductor, and right for open sheets too,
+    whose two faces carry different charges)."""
+    eps = EPS0 * eps_r
+    pv = evaluate(panels, sigma, panels.centroids, eps_r, rules).E[:, 0]
+    jump = (sigma / (2 * eps))[:, None] * panels.normals
+    faces = np.stack([pv + jump, pv - jump], axis=1)
+    force = (sigma * panels.areas)[:, None] * pv
+    return SurfaceFields(sigma, sigma / eps, faces, force)
+
+
+def conductor_forces(panels, surface):
+    """Net force (N) and torque about the conductor's area centroid (N m), each (n_cond, 3)."""
+    n = panels.n_conductors
+    force = np.zeros((n, 3))
+    torque = np.zeros((n, 3))
+    area = panels.conductor_areas()
+    for c in range(n):
+        on = panels.owner == c
+        centre = (panels.areas[on, None] * panels.centroids[on]).sum(axis=0) / area[c]
+        force[c] = surface.panel_force[on].sum(axis=0)
+        torque[c] = np.cross(panels.centroids[on] - centre, surface.panel_force[on]).sum(axis=0)
+    return force, torque
+
+
+def peak_fields(panels, surface):
+    """Largest |E| (V/m) on each conductor's faces and where (panel centroid, m)."""
+    magnitude = np.linalg.norm(surface.face_fields, axis=2).max(axis=1)
+    peaks = []
+    for c in range(panels.n_conductors):
+        on = np.flatnonzero(panels.owner == c)
+        k = on[np.argmax(magnitude[on])]
+        peaks.append((float(magnitude[k]), panels.centroids[k].tolist()))
+    return peaks
+
+
+@dataclass(frozen=True)
+class Grid:
+    """A box of points: origin (3,) m, spacing (3,) m, shape (nx, ny, nz); x varies fastest."""
+
+    origin: np.ndarray
+    spacing: np.ndarray
+    shape: tuple
+
+    @classmethod
+    def around(cls, lo, hi, margin=0.5, points=(41, 41, 41)):
+        """Box around [lo, hi] widened by margin * size on every side."""
+        lo, hi = np.asarray(lo, float), np.asarray(hi, float)
+        pad = margin * (hi - lo).max()
+        return cls.box(lo - pad, hi + pad, points)
+
+    @classmethod
+    def box(cls, lo, hi, points):
+        lo, hi = np.asarray(lo, float), np.asarray(hi, float)
+        shape = tuple(int(p) for p in points)
+        spacing = np.where(np.array(shape) > 1, (hi - lo) / np.maximum(np.array(shape) - 1, 1), 1.0)
+        return cls(lo, spacing, shape)
+
+    def axes(self):
+        return [self.origin[a] + self.spacing[a] * np.arange(self.shape[a]) for a in range(3)]
+
+    def points(self):
+        x, y, z = np.meshgrid(*self.axes(), indexing="ij")
+        return np.column_stack([x.ravel(order="F"), y.ravel(order="F"), z.ravel(order="F")])
+
+    def trapezoid_weights(self):
+        """Volume weights (m^3) of the trapezoid rule at each point, in points() order."""
+        w = []
+        for a in range(3):
+            wa = np.full(self.shape[a], self.spacing[a])
+            if self.shape[a] > 1:
+                wa[[0, -1]] *= 0.5
+            w.append(wa)
+        return np.einsum("i,j,k->ijk", *w).ravel(order="F")
+
+    def boundary(self):
+        """Points on the box faces (q, 3), their outward normals (q, 3) and area weights (q,),
+        by the trapezoid rule on each face (edges and corners shared between faces)."""
+        ax = self.axes()
+        pts, nrm, wts = [], [], []
+        for a in range(3):
+            b, c = [i for i in range(3) if i != a]
+            wb = np.full(self.shape[b], self.spacing[b])
+            wc = np.full(self.shape[c], self.spacing[c])
+            wb[[0, -1]] *= 0.5
+            wc[[0, -1]] *= 0.5
+            gb, gc = np.meshgrid(ax[b], ax[c], indexing="ij")
+            for side, value in ((-1.0, ax[a][0]), (1.0, ax[a][-1])):
+                p = np.empty((gb.size, 3))
+                p[:, a], p[:, b], p[:, c] = value, gb.ravel(), gc.ravel()
+                n = np.zeros((gb.size, 3))
+                n[:, a] = side
+                pts.append(p)
+                nrm.append(n)
+                wts.append(np.outer(wb, wc).ravel())
+        return np.concatenate(pts), np.concatenate(nrm), np.concatenate(wts)
+
+
+def exterior_energy(phi, E, normals, weights, eps):
+    """Energy (J) of the field outside a closed box from phi and E on its surface:
+    W_out = 1/2 eps oint phi E.n dA (Green's first identity on the exterior, where
+    laplace(phi) = 0 and phi ~ 1/r at infinity; n points out of the box)."""
+    return 0.5 * eps * float(np.sum(weights * phi * np.einsum("ij,ij->i", E, normals)))
+
+
+def multipole_fields(points, charges, centre, dipole, eps):
+    """phi (V) and E (V/m) at points of a point charge Q and a dipole p (C m) at centre."""
+    r = points - centre
+    d = np.linalg.norm(r, axis=1)
+    k = 1.0 / (4 * math.pi * eps)
+    pr = r @ dipole
+    phi = k * (charges / d + pr / d**3)
+    E = k * (charges * r / d[:, None] ** 3
+             + (3 * pr[:, None] * r / d[:, None] ** 2 - dipole) / d[:, None] ** 3)
+    return phi, E
+
+
+def energy_balance(panels, result, grid, grid_fields, boundary_fields, boundary):
+    """The stored energy three ways (J), for the result's potentials.
+
+    grid_fields: PointFields on grid.points(); boundary_fields: PointFields on the box faces
+    (grid.boundary()). Returns a dict: from the matrix 1/2 V^T C V, from the charges
+    1/2 sum Q_i V_i, the grid integral of 1/2 eps |E|^2 outside conductors, the energy outside
+    the box from the computed surface field (exact identity) and from the monopole and dipole
+    moments alone, and the fraction of the energy inside the box."""
+    eps = EPS0 * result.solver.get("relative_permittivity", 1.0)
+    density = grid_fields.energy_density(eps)[:, 0]
+    density[grid_fields.inside] = 0.0
+    w_grid = float(np.sum(density * grid.trapezoid_weights()))
+    points, normals, weights = boundary
+    w_tail = exterior_energy(boundary_fields.phi[:, 0], boundary_fields.E[:, 0], normals,
+                             weights, eps)
+    q_panel = result.panel_sigma() * panels.areas
+    total_q = float(q_panel.sum())
+    centre = np.mean(points, axis=0)
+    dipole = (q_panel[:, None] * (panels.centroids - centre)).sum(axis=0)
+    phi_md, e_md = multipole_fields(points, total_q, centre, dipole, eps)
+    w_tail_md = exterior_energy(phi_md, e_md, normals, weights, eps)
+    w_matrix = result.energy
+    return {
+        "energy_J": w_matrix,
+        "energy_from_charges_J": 0.5 * float(result.charges @ result.potentials),
+        "energy_grid_J": w_grid,
+        "energy_outside_grid_J": w_tail,
+        "energy_outside_grid_multipole_J": w_tail_md,
+        "energy_grid_plus_outside_J": w_grid + w_tail,
+        "fraction_in_grid": w_grid / w_matrix if w_matrix else float("nan"),
+    }
