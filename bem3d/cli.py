@@ -136,14 +136,18 @@ def _field_request(args, model):
 
 
 def _run_field(model, request, quiet=False):
-    from .field_map import FIELD_CAUTION, map_fields
-    from .pipeline import extract
+    from .field_map import AIR_BREAKDOWN_V_PER_M, FIELD_CAUTION, map_fields
+    from .meshio_io import read_conductors
+    from .pipeline import solve_panels
     from .units import format_quantity
 
     start = time.perf_counter()
-    panels, result, warnings = extract(model, progress=not quiet)
-    result.timings_s["total"] = time.perf_counter() - start
-    record, files = map_fields(panels, result, model, request, warnings, progress=not quiet)
+    panels, warnings = read_conductors(model.meshes, units=model.length_unit)
+    plan = request.plan(panels)              # a bad request fails here, before the solve
+    result = solve_panels(panels, model.volts, model.relative_permittivity, progress=not quiet)
+    result.timings_s["total"] = time.perf_counter() - start      # to the capacitance
+    record, files = map_fields(panels, result, model, request, plan, warnings,
+                               progress=not quiet)
     if quiet:
         return files
     for w in warnings + record.get("picture_problems", []):
@@ -159,11 +163,14 @@ def _run_field(model, request, quiet=False):
     for label, value in rows:
         share = f"{value / w:8.2%}" if w else ""
         print(f"  {label:<38}{format_quantity(value, 'J'):>14}{share}")
-    print("peak |E| on each conductor (panel centroids; edges are higher)")
+    print("peak |E| on each conductor (panel centroids; edges are higher), "
+          "and its share of air's breakdown field")
     scale, unit = LENGTH_UNITS[model.length_unit], model.length_unit
     for name, peak in record["peak_field_V_per_m"].items():
         at = ", ".join(f"{x / scale:.4g}" for x in peak["at_m"])
-        print(f"  {name:<14}{peak['value'] / 1e6:10.4g} kV/mm at ({at}) {unit}")
+        share = peak["value"] / AIR_BREAKDOWN_V_PER_M
+        print(f"  {name:<14}{format_quantity(peak['value'], 'V/m'):>14}{share:10.2%}  "
+              f"at ({at}) {unit}")
     print("force on each conductor [N]")
     for name, f in record["force_N"].items():
         print(f"  {name:<14}" + "".join(f"{c:>12.4g}" for c in f))
@@ -211,7 +218,10 @@ def _demo(args):
                   output_folder=folder, spice_name="sensor_head")
     print(f"demo: capacitive sensor head (two sense pads, drive pad, guard ring, lid); "
           f"drive at {demo.VOLTS['drive']:g} V, others at 0 V")
-    _run_extract(model)
+    from .field_map import FieldRequest
+
+    # the board face z = 0 carries the pads: slice just above it, between grid planes
+    _run_field(model, FieldRequest(slices=[(2, demo.SLICE_Z_MM * 1e-3)], png=True))
     print(f"demo files are in {folder.resolve()}")
     return 0
 

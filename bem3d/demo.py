@@ -17,6 +17,8 @@ from .export import atomic_path
 LENGTH_UNIT = "mm"
 #: The drive pad is excited; sense pads, guard and lid are held at 0 V.
 VOLTS = {"drive": 5.0}
+#: Height (mm) of the field slice the demo pictures: just above the pads, inside the lid.
+SLICE_Z_MM = 0.25
 
 # Layout in mm. Gaps are real clearances between conductors, never zero.
 PAD_Y = 5.0             # pad length along y

@@ -1,6 +1,8 @@
 """The `field` job: fields on a grid, slices and listed points, energy balance, peaks, forces."""
 
+import math
 import sys
+import time
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -62,11 +64,23 @@ class FieldRequest:
                 counts = np.repeat(counts, 3)
             if np.any(counts < 2):
                 raise ModelError("--points: at least 2 per axis")
-        total = int(np.prod(counts))
+        total = math.prod(int(c) for c in counts)         # Python ints: no overflow
         if total > MAX_GRID_POINTS:
             raise ResourceError(f"the grid would have {total:,} points (limit "
                                 f"{MAX_GRID_POINTS:,}); use a coarser --spacing or fewer --points")
         return Grid.box(lo, hi, counts)
+
+    def plan(self, panels):
+        """Check the whole request against the model before any solving: returns the grid,
+        [(axis, value, slice grid)] and the listed points (m) or None."""
+        grid = self.grid(panels)
+        slices = list(self.slices)
+        if self.png and not slices:       # a picture needs a slice: the box's middle in z
+            slices = [(2, float(grid.origin[2] + grid.spacing[2] * (grid.shape[2] - 1) / 2))]
+        slice_grids = [(axis, value, _slice_grid(grid, axis, value)) for axis, value in slices]
+        listed = None if self.point_file is None else read_points(self.point_file,
+                                                                  self.point_scale)
+        return grid, slice_grids, listed
 
 
 def read_points(path, scale):
@@ -144,8 +158,10 @@ def _point_arrays(fields, eps, names, unit_fields):
     return arrays
 
 
-def map_fields(panels, result, model, request, warnings=(), progress=False):
+def map_fields(panels, result, model, request, plan, warnings=(), progress=False):
     """Evaluate, balance and write everything for the `field` job; returns (record, files).
+
+    plan: request.plan(panels), made before the solve so that a bad request costs nothing.
 
     record holds the keys added to result.json (energies J, peaks V/m, forces N, torques N m)."""
     eps_r = model.relative_permittivity
@@ -154,15 +170,21 @@ def map_fields(panels, result, model, request, warnings=(), progress=False):
     sigma = result.panel_sigma()[:, None]
     if request.unit_fields:
         sigma = np.hstack([sigma, result.sigma])
-    grid = request.grid(panels)
+    grid, slice_grids, listed = plan
+
+    start = time.perf_counter()
     grid_fields = _fields_at(panels, sigma, grid.points(), eps_r, "grid", progress)
     boundary = grid.boundary()
     boundary_fields = _fields_at(panels, sigma[:, :1], boundary[0], eps_r, "box faces", progress)
     balance = energy_balance(panels, result, grid, grid_fields, boundary_fields, boundary)
-
     surface = surface_fields(panels, result.panel_sigma(), eps_r)
     force, torque = conductor_forces(panels, surface)
     peaks = peak_fields(panels, surface)
+    slice_fields = [_fields_at(panels, sigma, sgrid.points(), eps_r, "slice", progress)
+                    for _, _, sgrid in slice_grids]
+    listed_fields = None if listed is None else evaluate(panels, sigma, listed, eps_r)
+    result.timings_s["fields"] = time.perf_counter() - start
+
     record = dict(balance)
     record.update({
         "grid": {"origin_m": grid.origin.tolist(), "spacing_m": grid.spacing.tolist(),
@@ -180,27 +202,20 @@ def map_fields(panels, result, model, request, warnings=(), progress=False):
     target = folder / "field.vti"
     write_image(grid, _point_arrays(grid_fields, eps, panels.names, request.unit_fields), target)
     files.append(target)
-
-    slices = list(request.slices)
-    if request.png and not slices:       # a picture needs a slice: the box's middle in z
-        slices = [(2, float(grid.origin[2] + grid.spacing[2] * (grid.shape[2] - 1) / 2))]
     slice_outputs = []
-    for axis, value in slices:
-        sgrid = _slice_grid(grid, axis, value)
-        sfields = _fields_at(panels, sigma, sgrid.points(), eps_r, "slice", progress)
+    for (axis, value, sgrid), sfields in zip(slice_grids, slice_fields):
         target = folder / f"slice_{'xyz'[axis]}_{value:.6g}.vtp"
         arrays = _point_arrays(sfields, eps, panels.names, request.unit_fields)
         write_slice(sgrid, arrays, target)
         files.append(target)
         slice_outputs.append((target, axis, arrays))
-
-    if request.point_file is not None:
-        points = read_points(request.point_file, request.point_scale)
-        pfields = evaluate(panels, sigma, points, eps_r)
+    if listed is not None:
         target = folder / "points.csv"
-        write_point_table(points, {"phi_V": pfields.phi[:, 0], "E_V_per_m": pfields.E[:, 0],
-                                   "energy_density_J_per_m3": pfields.energy_density(eps)[:, 0],
-                                   "inside_conductor": pfields.inside.astype(int)}, target)
+        write_point_table(listed, {"phi_V": listed_fields.phi[:, 0],
+                                   "E_V_per_m": listed_fields.E[:, 0],
+                                   "energy_density_J_per_m3":
+                                       listed_fields.energy_density(eps)[:, 0],
+                                   "inside_conductor": listed_fields.inside.astype(int)}, target)
         files.append(target)
 
     if request.png:

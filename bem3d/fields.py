@@ -71,28 +71,58 @@ def evaluate(panels, sigma, points, eps_r=1.0, rules=FieldRules(), chunk=20000, 
 @dataclass
 class SurfaceFields:
     """Per-panel fields for one excitation: sigma (C/m^2), E_n = sigma/eps (V/m) on the normal
-    side of a closed conductor, the field on each face of the panel (n, 2, 3) V/m, and the force
-    on each panel (n, 3) N."""
+    side of a closed conductor, the field on each face of the panel (n, 2, 3) V/m (normal side
+    first), the force on each panel (n, 3) N, and whether the panel's conductor is closed."""
 
     sigma: np.ndarray
     normal_field: np.ndarray
     face_fields: np.ndarray
     panel_force: np.ndarray
+    closed: np.ndarray
 
 
 def surface_fields(panels, sigma, eps_r=1.0, rules=FieldRules()):
     """Fields and forces on the panels for charge density sigma (n,) C/m^2.
 
-    At a panel's centroid the mean of the fields on its two faces is the principal value E_pv;
-    the faces see E_pv +- sigma/(2 eps) n. The force on the panel's charge is sigma A E_pv
-    (the Maxwell stress sigma^2/(2 eps) n on a closed conductor, and right for open sheets too,
-    whose two faces carry different charges)."""
+    On a closed conductor the field just outside is sigma/eps n and the force per area is the
+    Maxwell stress sigma^2/(2 eps) n. An open sheet carries the charge of both faces summed,
+    so there the faces see E_pv +- sigma/(2 eps) n, with E_pv the principal value (mean of both
+    faces) at the centroid, and the force is sigma A E_pv; that form converges only like the
+    panel size (measured), so forces on sheets are better taken by virtual work."""
     eps = EPS0 * eps_r
+    closed = closed_conductors(panels)[panels.owner]
     pv = evaluate(panels, sigma, panels.centroids, eps_r, rules).E[:, 0]
-    jump = (sigma / (2 * eps))[:, None] * panels.normals
-    faces = np.stack([pv + jump, pv - jump], axis=1)
-    force = (sigma * panels.areas)[:, None] * pv
-    return SurfaceFields(sigma, sigma / eps, faces, force)
+    outside = (sigma / eps)[:, None] * panels.normals
+    jump = 0.5 * outside
+    faces = np.where(closed[:, None, None], np.stack([outside, 0 * outside], axis=1),
+                     np.stack([pv + jump, pv - jump], axis=1))
+    force = np.where(closed[:, None], 0.5 * (sigma * panels.areas)[:, None] * outside,
+                     (sigma * panels.areas)[:, None] * pv)
+    return SurfaceFields(sigma, sigma / eps, faces, force, closed)
+
+
+def virtual_work_force(panels, volts, conductor, eps_r=1.0, step=None, solve=None):
+    """Force (N) on conductor index `conductor` at fixed potentials volts (n_cond,) V by virtual
+    work, F = +1/2 V^T (dC/dx) V, central differences of C under rigid moves of +-step (m,
+    default 1e-4 of the model size) along x, y and z. Six solves of the whole model."""
+    from .geometry import Panels
+    from .pipeline import solve_panels
+
+    solve = solve or (lambda p: solve_panels(p, eps_r=eps_r).maxwell)
+    if step is None:
+        v = panels.vertices.reshape(-1, 3)
+        step = 1e-4 * float(np.max(v.max(axis=0) - v.min(axis=0)))
+    on = panels.owner == conductor
+    volts = np.asarray(volts, float)
+    force = np.zeros(3)
+    for axis in range(3):
+        c = []
+        for sign in (1.0, -1.0):
+            moved = panels.vertices.copy()
+            moved[on, :, axis] += sign * step
+            c.append(solve(Panels(moved, panels.owner, panels.names)))
+        force[axis] = 0.5 * volts @ ((c[0] - c[1]) / (2 * step)) @ volts
+    return force
 
 
 def conductor_forces(panels, surface):

@@ -41,6 +41,11 @@ def triangle_integrals(x0, x1, x2, v, nrm):
     the two sides, which differ by 2 pi)."""
     n0, n1, n2 = nrm[0], nrm[1], nrm[2]
     d = (x0 - v[0, 0]) * n0 + (x1 - v[0, 1]) * n1 + (x2 - v[0, 2]) * n2
+    # a point meant to lie on the panel (a centroid, say) sits ~1e-17 off its plane after
+    # rounding; treat it as in the plane so that it gets the principal value, not one side
+    size = abs(v[1, 0] - v[0, 0]) + abs(v[1, 1] - v[0, 1]) + abs(v[1, 2] - v[0, 2])
+    if abs(d) < 1e-12 * size:
+        d = 0.0
     ad = abs(d)
     log_sum = 0.0
     atan_sum = 0.0

@@ -49,7 +49,9 @@ def render_slice(surface, plane, axis, values, target, label, unit):
     plane.point_data["shown"] = shown
     plotter.add_mesh(plane, scalars="shown", cmap="inferno",
                      scalar_bar_args={"title": f"{label} [{unit}]", "color": "black"})
-    plotter.add_mesh(surface.extract_feature_edges(), color="white", line_width=1)
+    outline = surface.extract_feature_edges()
+    if outline.n_points:                      # smooth closed bodies have no feature edges
+        plotter.add_mesh(outline, color="white", line_width=1)
     plotter.add_text(f"{label} on the slice {'xyz'[axis]} = const", color="black", font_size=12)
     [plotter.view_yz, plotter.view_xz, plotter.view_xy][axis]()
     plotter.screenshot(str(target))

@@ -172,3 +172,66 @@ def test_demo_runs_end_to_end(tmp_path, capsys):
     assert c[0, 2] == pytest.approx(c[1, 2], rel=1e-4)
     assert c[0, 0] == pytest.approx(c[1, 1], rel=1e-4)
     assert str((tmp_path / "demo").resolve()) in out
+
+
+def test_field_writes_grid_slices_points_surface_and_pictures(two_spheres, tmp_path, capsys):
+    points = tmp_path / "probe.csv"
+    points.write_text("x,y,z\n0,0,0\n1.5,0,0\n0,0,5\n")
+    out = tmp_path / "f"
+    code, stdout, _ = run(["field", *two_spheres, "--units", "mm", "--volts", "left=1",
+                           "right=-1", "--points", "21", "--slice", "z=0", "--slice", "x=1.5",
+                           "--at", points, "--unit-fields", "--png", "--out", out], capsys)
+    assert code == 0
+    assert "grid + outside" in stdout and "kV/mm" in stdout and "breaks down" in stdout
+    record = json.loads((out / "result.json").read_text())
+    for key in ("energy_J", "energy_grid_J", "energy_outside_grid_J", "force_N",
+                "torque_about_centroid_N_m", "peak_field_V_per_m"):
+        assert key in record
+    # attraction along x between opposite charges; equal and opposite (Newton's third law)
+    assert record["force_N"]["right"][0] < 0
+    assert record["force_N"]["left"][0] == pytest.approx(-record["force_N"]["right"][0], rel=1e-6)
+
+    grid = pv.read(out / "field.vti")
+    assert grid.dimensions == (21, 21, 21)
+    for name in ("phi", "E", "E_magnitude", "energy_density", "inside_conductor",
+                 "phi_unit_left", "E_unit_right"):
+        assert name in grid.point_data
+    assert grid.point_data["E"].shape == (21**3, 3)
+    # the energy density is 1/2 eps0 |E|^2 in J/m^3 (definition)
+    np.testing.assert_allclose(grid.point_data["energy_density"],
+                               0.5 * EPS0 * grid.point_data["E_magnitude"] ** 2, rtol=1e-12)
+    inside = grid.point_data["inside_conductor"].astype(bool)
+    centre = np.argmin(np.linalg.norm(grid.points - [0, 0, 0], axis=1))
+    assert inside[centre] and inside.sum() > 0 and not inside.all()
+    # inside the left sphere (at 1 V) phi is 1 V (closed conductor)
+    assert grid.point_data["phi"][centre] == pytest.approx(1.0, abs=0.02)
+
+    for name in ("slice_z_0.vtp", "slice_x_0.0015.vtp"):
+        plane = pv.read(out / name)
+        assert plane.n_points == 21 * 21 and "energy_density" in plane.point_data
+    rows = list(csv.reader((out / "points.csv").open()))
+    assert rows[0][:4] == ["x_m", "y_m", "z_m", "phi_V"] and len(rows) == 4
+    assert float(rows[1][3]) == pytest.approx(1.0, abs=0.02)          # inside the left sphere
+    assert float(rows[3][0]) == 0 and float(rows[3][2]) == pytest.approx(5e-3)   # mm -> m
+    surface = pv.read(out / "surface.vtp")
+    assert {"sigma", "E_normal", "E_face_max", "force_density"} <= set(surface.cell_data.keys())
+    np.testing.assert_allclose(surface.cell_data["E_normal"], surface.cell_data["sigma"] / EPS0)
+    for png in ("surface_charge.png", "field_slice.png"):
+        data = (out / png).read_bytes()
+        assert data[:8] == b"\x89PNG\r\n\x1a\n" and len(data) > 10_000
+
+
+@pytest.mark.parametrize("extra, words", [
+    (["--slice", "q=1"], "--slice"),
+    (["--slice", "z=99"], "outside the field box"),
+    (["--box", "1", "1", "1", "0", "0", "0"], "--box"),
+    (["--points", "1"], "--points"),
+    (["--spacing", "1e-7"], "points (limit"),
+    (["--at", "{d}/nothing.csv"], "nothing.csv"),
+])
+def test_field_bad_options_exit_2_and_write_nothing(two_spheres, tmp_path, capsys, extra, words):
+    out = tmp_path / "f"
+    code, _, err = run(["field", *two_spheres, "--units", "mm", "--out", out]
+                       + [e.format(d=tmp_path) for e in extra], capsys)
+    assert code == 2 and words in err and len(err.strip().splitlines()) == 1
+    assert not out.exists()
