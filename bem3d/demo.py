@@ -6,7 +6,6 @@ All conductors are zero-thickness sheets; lengths in millimetres. The mesh is de
 tools/make_demo.py writes meshes/sensor_head.msh from it byte for byte.
 """
 
-import os
 
 import meshio
 import numpy as np
@@ -82,4 +81,3 @@ def write_demo_mesh(out):
         if names != expected or not np.array_equal(read_tags,
                                                    np.concatenate(mesh.cell_data["gmsh:physical"])):
             raise RuntimeError(f"{tmp} did not read back with the physical groups written")
-        os.chmod(tmp, 0o644)            # mkstemp makes it private; the shipped file is public

@@ -16,6 +16,10 @@ CAUTION = ("Engineering estimate from a surface discretisation. Stored field ene
            "codes and licensed practice, not this result.")
 
 
+_UMASK = os.umask(0o022)
+os.umask(_UMASK)
+
+
 @contextmanager
 def atomic_path(target):
     """Yield a temporary path beside target (same suffix); it replaces target only on success."""
@@ -25,6 +29,7 @@ def atomic_path(target):
     os.close(fd)
     try:
         yield Path(tmp)
+        os.chmod(tmp, 0o666 & ~_UMASK)       # mkstemp makes files private; outputs are not
         os.replace(tmp, target)
     finally:
         if os.path.exists(tmp):
