@@ -272,7 +272,7 @@ def assemble_dense(out, verts, normals, centroids, radii, areas,
     _mirror_lower(out)
 
 
-@njit(parallel=True, cache=True, error_model="numpy")
+@njit(parallel=True, cache=True, error_model="numpy", fastmath=True)
 def evaluate_points(points, sigma, closed, verts, normals, centroids, radii, areas,
                     pts_mid, w_mid, pts_near, w_near, near, mid, far, phi, grad, winding):
     """Potential and field integrals of panel charges sigma (n_panels, k) at points (m, 3).
@@ -287,23 +287,34 @@ def evaluate_points(points, sigma, closed, verts, normals, centroids, radii, are
     k = sigma.shape[1]
     for i in prange(m):
         x0, x1, x2 = points[i, 0], points[i, 1], points[i, 2]
-        # one-point values for every panel (branch-free, vectorised) ...
-        for l in range(n):
-            r0 = x0 - centroids[l, 0]
-            r1 = x1 - centroids[l, 1]
-            r2 = x2 - centroids[l, 2]
-            d2 = r0 * r0 + r1 * r1 + r2 * r2
-            inv = 1.0 / math.sqrt(d2) if d2 > 0.0 else 0.0     # a point on a centroid
-            a = areas[l] * inv
-            b = a * inv * inv
-            winding[i] -= closed[l] * b * (r0 * normals[l, 0] + r1 * normals[l, 1]
-                                           + r2 * normals[l, 2])
-            for j in range(k):
-                s = sigma[l, j]
-                phi[i, j] += s * a
-                grad[i, j, 0] += s * b * r0
-                grad[i, j, 1] += s * b * r1
-                grad[i, j, 2] += s * b * r2
+        # one-point values for every panel (branch-free, vectorised), one excitation at a
+        # time so that the sums stay in registers ...
+        for j in range(k):
+            sp = 0.0
+            s0 = 0.0
+            s1 = 0.0
+            s2 = 0.0
+            sw = 0.0
+            for l in range(n):
+                r0 = x0 - centroids[l, 0]
+                r1 = x1 - centroids[l, 1]
+                r2 = x2 - centroids[l, 2]
+                d2 = r0 * r0 + r1 * r1 + r2 * r2
+                inv = 1.0 / math.sqrt(d2) if d2 > 0.0 else 0.0     # a point on a centroid
+                a = sigma[l, j] * areas[l] * inv
+                b = a * inv * inv
+                sp += a
+                s0 += b * r0
+                s1 += b * r1
+                s2 += b * r2
+                if j == 0:
+                    sw -= closed[l] * areas[l] * inv * inv * inv * (
+                        r0 * normals[l, 0] + r1 * normals[l, 1] + r2 * normals[l, 2])
+            phi[i, j] += sp
+            grad[i, j, 0] += s0
+            grad[i, j, 1] += s1
+            grad[i, j, 2] += s2
+            winding[i] += sw
         # ... then the panels inside `far` are replaced by their proper rule
         for l in range(n):
             r0 = x0 - centroids[l, 0]
