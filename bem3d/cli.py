@@ -23,6 +23,10 @@ def _add_model_options(p):
                    help="conductor potentials in volts; unlisted conductors are at 0 V")
     p.add_argument("--eps-r", type=float, help="relative permittivity of the background medium")
     p.add_argument("--out", type=Path, help="output folder (default: <first input>_result)")
+    p.add_argument("--ground-plane", type=float, metavar="Z",
+                   help="infinite grounded plane z = Z (mesh unit), by the method of images")
+    p.add_argument("--floating", action="append", default=[], metavar="NAME",
+                   help="a conductor with zero net charge and unknown potential; repeatable")
 
 
 def _parser():
@@ -82,6 +86,9 @@ def _model_from_args(args):
     if args.eps_r is not None:
         model.relative_permittivity = args.eps_r
     model.volts.update(parse_volts(args.volts))
+    if args.ground_plane is not None:
+        model.ground_plane_z = args.ground_plane
+    model.floating += args.floating
     if args.out:
         model.output_folder = args.out
     if model.output_folder is None:
@@ -143,8 +150,9 @@ def _run_field(model, request, quiet=False):
 
     start = time.perf_counter()
     panels, warnings = read_conductors(model.meshes, units=model.length_unit)
-    plan = request.plan(panels)              # a bad request fails here, before the solve
-    result = solve_panels(panels, model.volts, model.relative_permittivity, progress=not quiet)
+    plan = request.plan(panels, model.ground_z_m)    # a bad request fails here, before the solve
+    result = solve_panels(panels, model.volts, model.relative_permittivity, progress=not quiet,
+                          ground_z=model.ground_z_m, floating=model.floating)
     result.timings_s["total"] = time.perf_counter() - start      # to the capacitance
     record, files = map_fields(panels, result, model, request, plan, warnings,
                                progress=not quiet)

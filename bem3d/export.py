@@ -50,6 +50,7 @@ def result_record(result, extra=None):
         "mutual_capacitance_F": result.mutual.tolist(),
         "panels": int(result.n_panels),
         "potentials_V": result.potentials.tolist(),
+        "floating_potentials_V": result.floating,
         "charges_C": result.charges.tolist(),
         "energy_J": result.energy,
         "checks": result.checks(),
@@ -112,7 +113,7 @@ def write_surface(panels, result, target, extra_cells=None):
     """surface.vtp: sigma (C/m^2) at the given potentials, conductor id, conductor potential (V),
     plus any extra cell arrays."""
     cells = {"sigma": result.panel_sigma(), "conductor": panels.owner.astype(np.int32),
-             "potential": result.potentials[panels.owner]}
+             "potential": result.potentials_of(panels.names)[panels.owner]}
     cells.update(extra_cells or {})
     with atomic_path(target) as tmp:
         surface_polydata(panels, cells).save(tmp)

@@ -43,12 +43,14 @@ class FieldRequest:
     unit_fields: bool = False
     png: bool = False
 
-    def grid(self, panels):
+    def grid(self, panels, ground_z=None):
         v = panels.vertices.reshape(-1, 3)
         if self.box is None:
             lo, hi = v.min(axis=0), v.max(axis=0)
             pad = self.margin * (hi - lo).max()
             lo, hi = lo - pad, hi + pad
+            if ground_z is not None:          # below a grounded plane there is no field
+                lo[2] = ground_z
         else:
             lo, hi = (np.asarray(b, float) for b in self.box)
             if np.any(hi <= lo):
@@ -70,10 +72,10 @@ class FieldRequest:
                                 f"{MAX_GRID_POINTS:,}); use a coarser --spacing or fewer --points")
         return Grid.box(lo, hi, counts)
 
-    def plan(self, panels):
+    def plan(self, panels, ground_z=None):
         """Check the whole request against the model before any solving: returns the grid,
         [(axis, value, slice grid)] and the listed points (m) or None."""
-        grid = self.grid(panels)
+        grid = self.grid(panels, ground_z)
         slices = list(self.slices)
         if self.png and not slices:       # a picture needs a slice: the box's middle in z
             slices = [(2, float(grid.origin[2] + grid.spacing[2] * (grid.shape[2] - 1) / 2))]
@@ -137,10 +139,10 @@ def _progress_bar(total, label, enabled):
     return update, bar.close
 
 
-def _fields_at(panels, sigma, points, eps_r, label, progress):
+def _fields_at(panels, sigma, points, eps_r, label, progress, ground_z):
     update, close = _progress_bar(len(points), label, progress)
     try:
-        return evaluate(panels, sigma, points, eps_r, progress=update)
+        return evaluate(panels, sigma, points, eps_r, progress=update, ground_z=ground_z)
     finally:
         close()
 
@@ -171,18 +173,22 @@ def map_fields(panels, result, model, request, plan, warnings=(), progress=False
     if request.unit_fields:
         sigma = np.hstack([sigma, result.sigma])
     grid, slice_grids, listed = plan
+    ground_z = result.solver.get("ground_plane_z_m")
 
     start = time.perf_counter()
-    grid_fields = _fields_at(panels, sigma, grid.points(), eps_r, "grid", progress)
+    grid_fields = _fields_at(panels, sigma, grid.points(), eps_r, "grid", progress, ground_z)
     boundary = grid.boundary()
-    boundary_fields = _fields_at(panels, sigma[:, :1], boundary[0], eps_r, "box faces", progress)
-    balance = energy_balance(panels, result, grid, grid_fields, boundary_fields, boundary)
-    surface = surface_fields(panels, result.panel_sigma(), eps_r)
+    boundary_fields = _fields_at(panels, sigma[:, :1], boundary[0], eps_r, "box faces", progress,
+                                 ground_z)
+    balance = energy_balance(panels, result, grid, grid_fields, boundary_fields, boundary,
+                             ground_z)
+    surface = surface_fields(panels, result.panel_sigma(), eps_r, ground_z=ground_z)
     force, torque = conductor_forces(panels, surface)
     peaks = peak_fields(panels, surface)
-    slice_fields = [_fields_at(panels, sigma, sgrid.points(), eps_r, "slice", progress)
+    slice_fields = [_fields_at(panels, sigma, sgrid.points(), eps_r, "slice", progress, ground_z)
                     for _, _, sgrid in slice_grids]
-    listed_fields = None if listed is None else evaluate(panels, sigma, listed, eps_r)
+    listed_fields = None if listed is None else evaluate(panels, sigma, listed, eps_r,
+                                                         ground_z=ground_z)
     result.timings_s["fields"] = time.perf_counter() - start
 
     record = dict(balance)
@@ -200,12 +206,12 @@ def map_fields(panels, result, model, request, plan, warnings=(), progress=False
                           {"E_normal": surface.normal_field, "E_face_max": face_max,
                            "force_density": surface.panel_force / panels.areas[:, None]})
     target = folder / "field.vti"
-    write_image(grid, _point_arrays(grid_fields, eps, panels.names, request.unit_fields), target)
+    write_image(grid, _point_arrays(grid_fields, eps, result.names, request.unit_fields), target)
     files.append(target)
     slice_outputs = []
     for (axis, value, sgrid), sfields in zip(slice_grids, slice_fields):
         target = folder / f"slice_{'xyz'[axis]}_{value:.6g}.vtp"
-        arrays = _point_arrays(sfields, eps, panels.names, request.unit_fields)
+        arrays = _point_arrays(sfields, eps, result.names, request.unit_fields)
         write_slice(sgrid, arrays, target)
         files.append(target)
         slice_outputs.append((target, axis, arrays))

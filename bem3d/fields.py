@@ -11,6 +11,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .constants import EPS0
+from .geometry import Panels
 from .kernels import evaluate_points
 from .meshio_io import closed_conductors
 from .quadrature import map_points, triangle_rule
@@ -40,15 +41,24 @@ class PointFields:
         return 0.5 * eps * np.sum(self.E**2, axis=-1)
 
 
-def evaluate(panels, sigma, points, eps_r=1.0, rules=FieldRules(), chunk=20000, progress=None):
+def evaluate(panels, sigma, points, eps_r=1.0, rules=FieldRules(), chunk=20000, progress=None,
+             ground_z=None):
     """phi and E at points (m, 3) in metres from panel charge densities sigma (n, k) in C/m^2.
 
     A point inside a closed conductor is flagged in `inside` (its field is ~0 there).
-    progress, if given, is called with the number of points done after each chunk."""
+    progress, if given, is called with the number of points done after each chunk.
+    ground_z: a grounded plane z = ground_z (m): the panels' mirror images carry -sigma
+    (the field is physical above the plane only)."""
     sigma = np.ascontiguousarray(np.atleast_2d(np.asarray(sigma, float).T).T)
     points = np.ascontiguousarray(np.asarray(points, float).reshape(-1, 3))
     k = sigma.shape[1]
     closed = closed_conductors(panels)[panels.owner].astype(np.float64)
+    if ground_z is not None:
+        image = panels.mirrored(ground_z)
+        panels = Panels(np.concatenate([panels.vertices, image.vertices]),
+                        np.concatenate([panels.owner, image.owner]), panels.names)
+        sigma = np.ascontiguousarray(np.vstack([sigma, -sigma]))
+        closed = np.concatenate([closed, np.zeros_like(closed)])    # images hold no points
     bary_near, w_near = triangle_rule(rules.near_degree)
     bary_mid, w_mid = triangle_rule(rules.mid_degree)
     pts_near = map_points(panels.vertices, bary_near)
@@ -81,7 +91,7 @@ class SurfaceFields:
     closed: np.ndarray
 
 
-def surface_fields(panels, sigma, eps_r=1.0, rules=FieldRules()):
+def surface_fields(panels, sigma, eps_r=1.0, rules=FieldRules(), ground_z=None):
     """Fields and forces on the panels for charge density sigma (n,) C/m^2.
 
     On a closed conductor the field just outside is sigma/eps n and the force per area is the
@@ -91,7 +101,7 @@ def surface_fields(panels, sigma, eps_r=1.0, rules=FieldRules()):
     panel size (measured), so forces on sheets are better taken by virtual work."""
     eps = EPS0 * eps_r
     closed = closed_conductors(panels)[panels.owner]
-    pv = evaluate(panels, sigma, panels.centroids, eps_r, rules).E[:, 0]
+    pv = evaluate(panels, sigma, panels.centroids, eps_r, rules, ground_z=ground_z).E[:, 0]
     outside = (sigma / eps)[:, None] * panels.normals
     jump = 0.5 * outside
     faces = np.where(closed[:, None, None], np.stack([outside, 0 * outside], axis=1),
@@ -105,7 +115,6 @@ def virtual_work_force(panels, volts, conductor, eps_r=1.0, step=None, solve=Non
     """Force (N) on conductor index `conductor` at fixed potentials volts (n_cond,) V by virtual
     work, F = +1/2 V^T (dC/dx) V, central differences of C under rigid moves of +-step (m,
     default 1e-4 of the model size) along x, y and z. Six solves of the whole model."""
-    from .geometry import Panels
     from .pipeline import solve_panels
 
     solve = solve or (lambda p: solve_panels(p, eps_r=eps_r).maxwell)
@@ -231,7 +240,7 @@ def multipole_fields(points, charges, centre, dipole, eps):
     return phi, E
 
 
-def energy_balance(panels, result, grid, grid_fields, boundary_fields, boundary):
+def energy_balance(panels, result, grid, grid_fields, boundary_fields, boundary, ground_z=None):
     """The stored energy three ways (J), for the result's potentials.
 
     grid_fields: PointFields on grid.points(); boundary_fields: PointFields on the box faces
@@ -250,6 +259,10 @@ def energy_balance(panels, result, grid, grid_fields, boundary_fields, boundary)
     total_q = float(q_panel.sum())
     centre = np.mean(points, axis=0)
     dipole = (q_panel[:, None] * (panels.centroids - centre)).sum(axis=0)
+    if ground_z is not None:     # charges and their images: no net charge, a vertical dipole
+        centre[2] = ground_z
+        dipole = np.array([0.0, 0.0, 2.0 * float(q_panel @ (panels.centroids[:, 2] - ground_z))])
+        total_q = 0.0
     phi_md, e_md = multipole_fields(points, total_q, centre, dipole, eps)
     w_tail_md = exterior_energy(phi_md, e_md, normals, weights, eps)
     w_matrix = result.energy

@@ -60,6 +60,13 @@ class Panels:
         b[np.arange(len(self)), self.owner] = self.areas
         return b
 
+    def mirrored(self, z0):
+        """The mirror images in the plane z = z0 (m), corner order reversed so that each image
+        keeps a right-handed normal (the mirror of the panel's normal)."""
+        v = self.vertices[:, ::-1].copy()
+        v[..., 2] = 2.0 * z0 - v[..., 2]
+        return Panels(v, self.owner, self.names)
+
     def transformed(self, scale=1.0, rotation=None, shift=(0.0, 0.0, 0.0)):
         """A copy moved rigidly: x -> scale * R x + shift."""
         v = self.vertices * scale

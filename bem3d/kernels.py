@@ -181,6 +181,35 @@ def _outer_closed_sum(xk, wk, vl, nl):
 
 
 @njit(cache=True, inline="always")
+def _pair(k, l, vk, nk, ck, rk, ak, hk, mk, fk, vl, nl, cl, rl, al, hl, ml, fl,
+          w_hi, w_near, w_mid, self_s, self_w, touch, near, mid, far, same):
+    # panel k of one set against panel l of another (or the same set, same=True); h, m, f are
+    # the touch, near and mid rule points of each set
+    a = ck[k, 0] - cl[l, 0]
+    b = ck[k, 1] - cl[l, 1]
+    c = ck[k, 2] - cl[l, 2]
+    d2 = a * a + b * b + c * c
+    s = rk[k] + rl[l]
+    aa = ak[k] * al[l]
+    if d2 > (far * s) ** 2:
+        return aa / math.sqrt(d2)
+    if d2 > (mid * s) ** 2:
+        return aa * _point_pair_sum(fk[k], w_mid, fl[l], w_mid)
+    if d2 > (near * s) ** 2:
+        return aa * _point_pair_sum(mk[k], w_near, ml[l], w_near)
+    if same and k == l:
+        return self_integral(vk[k], self_s, self_w)
+    # outer rule on the smaller panel, closed form over the larger
+    if ak[k] <= al[l]:
+        if d2 <= (touch * s) ** 2:
+            return ak[k] * _outer_closed_sum(hk[k], w_hi, vl[l], nl[l])
+        return ak[k] * _outer_closed_sum(mk[k], w_near, vl[l], nl[l])
+    if d2 <= (touch * s) ** 2:
+        return al[l] * _outer_closed_sum(hl[l], w_hi, vk[k], nk[k])
+    return al[l] * _outer_closed_sum(ml[l], w_near, vk[k], nk[k])
+
+
+@njit(cache=True, inline="always")
 def panel_pair_integral(k, l, verts, normals, centroids, radii, areas,
                         pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, self_s, self_w,
                         touch, near, mid, far):
@@ -188,33 +217,47 @@ def panel_pair_integral(k, l, verts, normals, centroids, radii, areas,
 
     Distance is measured in units of s = radius_k + radius_l between centroids:
     beyond `far` one point each; beyond `mid` the low (mid) rule on both; beyond `near` the
-    near rule on both; closer, a point rule on
-    the smaller panel and the closed form on the larger (high order inside `touch`); a panel
-    with itself by `self_integral` with edge rule self_s, self_w.
+    near rule on both; closer, a point rule on the smaller panel and the closed form on the
+    larger (the graded rule inside `touch`); a panel with itself by `self_integral` with edge
+    rule self_s, self_w.
     """
-    a = centroids[k, 0] - centroids[l, 0]
-    b = centroids[k, 1] - centroids[l, 1]
-    c = centroids[k, 2] - centroids[l, 2]
-    d2 = a * a + b * b + c * c
-    s = radii[k] + radii[l]
-    aa = areas[k] * areas[l]
-    if d2 > (far * s) ** 2:
-        return aa / math.sqrt(d2)
-    if d2 > (mid * s) ** 2:
-        return aa * _point_pair_sum(pts_mid[k], w_mid, pts_mid[l], w_mid)
-    if d2 > (near * s) ** 2:
-        return aa * _point_pair_sum(pts_near[k], w_near, pts_near[l], w_near)
-    if k == l:
-        return self_integral(verts[k], self_s, self_w)
-    # outer rule on the smaller panel, closed form over the larger
-    o = k
-    f = l
-    if areas[k] > areas[l]:
-        o = l
-        f = k
-    if d2 <= (touch * s) ** 2:
-        return areas[o] * _outer_closed_sum(pts_hi[o], w_hi, verts[f], normals[f])
-    return areas[o] * _outer_closed_sum(pts_near[o], w_near, verts[f], normals[f])
+    return _pair(k, l, verts, normals, centroids, radii, areas, pts_hi, pts_near, pts_mid,
+                 verts, normals, centroids, radii, areas, pts_hi, pts_near, pts_mid,
+                 w_hi, w_near, w_mid, self_s, self_w, touch, near, mid, far, True)
+
+
+@njit(cache=True)
+def _image_row(k, out, verts, normals, centroids, radii, areas, pts_hi, w_hi, pts_near, w_near,
+               pts_mid, w_mid, self_s, self_w, touch, near, mid, far,
+               i_verts, i_normals, i_centroids, i_pts_hi, i_pts_near, i_pts_mid):
+    for l in range(k + 1):
+        out[k, l] -= _pair(k, l, verts, normals, centroids, radii, areas, pts_hi, pts_near,
+                           pts_mid, i_verts, i_normals, i_centroids, radii, areas, i_pts_hi,
+                           i_pts_near, i_pts_mid, w_hi, w_near, w_mid, self_s, self_w,
+                           touch, near, mid, far, False)
+
+
+@njit(parallel=True, cache=True)
+def subtract_images(out, verts, normals, centroids, radii, areas,
+                    pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, self_s, self_w,
+                    touch, near, mid, far,
+                    i_verts, i_normals, i_centroids, i_pts_hi, i_pts_near, i_pts_mid):
+    """out[k, l] -= int_Tk int_Tl' 1/|x - y| for the mirror images l' of the panels in a
+    grounded plane (method of images: each panel's image carries the opposite charge).
+    The image block is symmetric (reflecting both panels swaps them), so its lower triangle is
+    computed and the result mirrored. The image arrays share areas and radii with the panels."""
+    n = areas.shape[0]
+    for i in prange((n + 1) // 2):
+        i = np.int64(i)          # prange indices may be unsigned; keep index arithmetic signed
+        _image_row(i, out, verts, normals, centroids, radii, areas, pts_hi, w_hi, pts_near,
+                   w_near, pts_mid, w_mid, self_s, self_w, touch, near, mid, far,
+                   i_verts, i_normals, i_centroids, i_pts_hi, i_pts_near, i_pts_mid)
+        j = n - 1 - i
+        if j != i:
+            _image_row(j, out, verts, normals, centroids, radii, areas, pts_hi, w_hi, pts_near,
+                       w_near, pts_mid, w_mid, self_s, self_w, touch, near, mid, far,
+                       i_verts, i_normals, i_centroids, i_pts_hi, i_pts_near, i_pts_mid)
+    _mirror_lower(out)
 
 
 @njit(cache=True, error_model="numpy")

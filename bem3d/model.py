@@ -5,6 +5,8 @@ A model comes from command-line flags or from a TOML model file such as
     length_unit = "mm"                  # m, cm, mm, um, in, mil
     relative_permittivity = 1.0         # uniform background medium
     meshes = ["sensor_head.msh"]        # paths relative to this file
+    ground_plane_z = 0.0                # optional: infinite grounded plane z = const (length_unit)
+    floating = ["lid"]                  # optional: conductors with zero net charge
     [volts]                             # conductors not listed are at 0 V
     drive = 5.0
     [output]
@@ -24,7 +26,8 @@ except ModuleNotFoundError:          # Python 3.10
 from .constants import LENGTH_UNITS
 from .errors import ModelError
 
-_TOP_KEYS = {"length_unit", "relative_permittivity", "meshes", "volts", "output"}
+_TOP_KEYS = {"length_unit", "relative_permittivity", "meshes", "volts", "output",
+             "ground_plane_z", "floating"}
 _OUTPUT_KEYS = {"folder", "spice_name"}
 
 
@@ -39,6 +42,8 @@ class Model:
     output_folder: Path | None = None
     spice_name: str = "bem3d_capacitance"
     source: str = "command line"
+    ground_plane_z: float | None = None
+    floating: list = field(default_factory=list)
 
     def __post_init__(self):
         self.meshes = [Path(p) for p in self.meshes]
@@ -53,6 +58,19 @@ class Model:
         self.relative_permittivity = eps
         self.volts = {str(k): _number(v, f"potential of '{k}'", self.source)
                       for k, v in self.volts.items()}
+        if self.ground_plane_z is not None:
+            self.ground_plane_z = _number(self.ground_plane_z, "ground plane z", self.source)
+        if not isinstance(self.floating, (list, tuple)) or not all(
+                isinstance(f, str) for f in self.floating):
+            raise ModelError(f"{self.source}: 'floating' must be a list of conductor names")
+        self.floating = list(dict.fromkeys(self.floating))
+
+    @property
+    def ground_z_m(self):
+        """Height of the grounded plane in metres, or None."""
+        if self.ground_plane_z is None:
+            return None
+        return self.ground_plane_z * LENGTH_UNITS[self.length_unit]
 
 
 def _number(value, what, source):
@@ -100,7 +118,8 @@ def load_model(path):
     return Model(meshes=[here / m for m in meshes], length_unit=unit,
                  relative_permittivity=data.get("relative_permittivity", 1.0), volts=volts,
                  output_folder=None if folder is None else here / folder,
-                 spice_name=spice_name, source=str(path))
+                 spice_name=spice_name, source=str(path),
+                 ground_plane_z=data.get("ground_plane_z"), floating=data.get("floating", []))
 
 
 def parse_volts(items, source="--volts"):

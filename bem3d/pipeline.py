@@ -10,7 +10,7 @@ from .errors import ModelError, ResourceError
 from .operators import PairRules
 from .operators.dense import DenseOperator, dense_bytes
 from .resources import available_memory, peak_memory
-from .results import CapacitanceResult
+from .results import CapacitanceResult, reduce_floating
 from .solve import solve_cg, solve_direct
 
 #: Above this many panels the dense backend solves by CG instead of Cholesky.
@@ -29,17 +29,34 @@ def plan_memory(n_panels, solver):
     return dense_bytes(n_panels) * (2 if solver == "direct" else 1)
 
 
+def check_ground_plane(panels, ground_z):
+    """Every conductor must lie wholly above the grounded plane z = ground_z (m)."""
+    low = [n for k, n in enumerate(panels.names)
+           if panels.vertices[panels.owner == k][..., 2].min() <= ground_z]
+    if low:
+        raise ModelError(f"--ground-plane z = {ground_z:g} m: conductor(s) {', '.join(low)} "
+                         "touch, cross or lie below the plane; all must lie above it")
+
+
 def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto", tol=1e-7,
-                 progress=False):
+                 progress=False, ground_z=None, floating=()):
     """Capacitance of the conductors in `panels` (metres) in a medium of relative permittivity eps_r.
 
     volts: {conductor name: V}; conductors not named are at 0 V. solver: 'direct' (Cholesky),
-    'cg' (conjugate gradients to relative residual tol) or 'auto' (direct up to DIRECT_LIMIT)."""
+    'cg' (conjugate gradients to relative residual tol) or 'auto' (direct up to DIRECT_LIMIT).
+    ground_z: height (m) of an infinite grounded plane (method of images), or None.
+    floating: names of conductors with zero net charge and unknown potential."""
     volts = dict(volts or {})
     unknown = sorted(set(volts) - set(panels.names))
     if unknown:
         raise ModelError(f"--volts: no conductor named {', '.join(unknown)} "
                          f"(conductors: {', '.join(panels.names)})")
+    fixed = sorted(set(volts) & set(floating))
+    if fixed:
+        raise ModelError(f"--volts: {', '.join(fixed)} is floating; its potential is an "
+                         "outcome, not an input")
+    if ground_z is not None:
+        check_ground_plane(panels, ground_z)
     if solver == "auto":
         solver = "direct" if len(panels) <= DIRECT_LIMIT else "cg"
     if solver not in ("direct", "cg"):
@@ -52,7 +69,7 @@ def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto"
     timings = {}
     _log(progress, f"assembling {len(panels)} panels ({need / 2**30:.2f} GiB) ...")
     t0 = time.perf_counter()
-    operator = DenseOperator(panels, eps_r=eps_r, rules=rules)
+    operator = DenseOperator(panels, eps_r=eps_r, rules=rules, ground_z=ground_z)
     timings["assembly"] = time.perf_counter() - t0
     _log(progress, f"solving ({solver}) ...")
     t0 = time.perf_counter()
@@ -66,12 +83,14 @@ def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto"
     potentials = np.array([volts.get(name, 0.0) for name in panels.names])
     settings = {"backend": "dense", "solver": report.method, "iterations": report.iterations,
                 "relative_residual": report.relative_residual, "tolerance": tol,
-                "relative_permittivity": eps_r, "pair_rules": rules.as_dict()}
-    return CapacitanceResult(names=panels.names, maxwell=0.5 * (maxwell + maxwell.T),
-                             sigma=report.charges, potentials=potentials, n_panels=len(panels),
-                             solver=settings, timings_s=timings,
-                             asymmetry=float(np.max(np.abs(maxwell - maxwell.T))
-                                             / np.max(np.abs(np.diag(maxwell)))))
+                "relative_permittivity": eps_r, "pair_rules": rules.as_dict(),
+                "ground_plane_z_m": ground_z, "floating": list(floating)}
+    result = CapacitanceResult(names=panels.names, maxwell=0.5 * (maxwell + maxwell.T),
+                               sigma=report.charges, potentials=potentials,
+                               n_panels=len(panels), solver=settings, timings_s=timings,
+                               asymmetry=float(np.max(np.abs(maxwell - maxwell.T))
+                                               / np.max(np.abs(np.diag(maxwell)))))
+    return reduce_floating(result, floating) if floating else result
 
 
 def extract(model, solver="auto", tol=1e-7, rules=PairRules(), progress=False):
@@ -80,6 +99,6 @@ def extract(model, solver="auto", tol=1e-7, rules=PairRules(), progress=False):
 
     panels, warnings = read_conductors(model.meshes, units=model.length_unit)
     result = solve_panels(panels, model.volts, model.relative_permittivity, rules, solver, tol,
-                          progress)
+                          progress, ground_z=model.ground_z_m, floating=model.floating)
     result.solver["peak_memory_MiB"] = peak_memory() / 2**20
     return panels, result, warnings

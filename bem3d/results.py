@@ -14,6 +14,36 @@ def mutual_from_maxwell(maxwell):
     return mutual
 
 
+def reduce_floating(result, floating):
+    """The result with the named conductors floating: zero net charge, unknown potential.
+
+    With t the terminals and f the floating conductors, Q_f = C_ft V_t + C_ff V_f = 0 gives
+    V_f = -C_ff^-1 C_ft V_t and the terminals' matrix C_tt - C_tf C_ff^-1 C_ft (a Schur
+    complement of the Maxwell matrix); every terminal's unit charge pattern gains the charge
+    its floating neighbours pick up."""
+    from .errors import ModelError
+
+    unknown = sorted(set(floating) - set(result.names))
+    if unknown:
+        raise ModelError(f"--floating: no conductor named {', '.join(unknown)} "
+                         f"(conductors: {', '.join(result.names)})")
+    f = [i for i, n in enumerate(result.names) if n in floating]
+    t = [i for i, n in enumerate(result.names) if n not in floating]
+    if not t:
+        raise ModelError("--floating: at least one conductor must stay a terminal")
+    c = result.maxwell
+    transfer = -np.linalg.solve(c[np.ix_(f, f)], c[np.ix_(f, t)])     # V_f per V_t
+    reduced = c[np.ix_(t, t)] + c[np.ix_(t, f)] @ transfer
+    sigma = result.sigma[:, t] + result.sigma[:, f] @ transfer
+    v_t = result.potentials[t]
+    names = tuple(result.names[i] for i in t)
+    return CapacitanceResult(
+        names=names, maxwell=0.5 * (reduced + reduced.T), sigma=sigma, potentials=v_t,
+        n_panels=result.n_panels, solver=result.solver, timings_s=result.timings_s,
+        asymmetry=result.asymmetry,
+        floating={result.names[i]: float(v) for i, v in zip(f, transfer @ v_t)})
+
+
 @dataclass
 class CapacitanceResult:
     """What an extraction found. Capacitances in F, potentials in V, charges in C, energy in J.
@@ -21,6 +51,8 @@ class CapacitanceResult:
     maxwell[i, j] is the charge on conductor i per volt on conductor j with all others at 0 V.
     sigma (n_panels, n_conductors) is the panel charge density (C/m^2) per volt on each conductor.
     asymmetry is max|C - C^T| / max C_ii of the matrix as solved, before it was symmetrised.
+    floating: {name: V} of conductors with zero net charge left out of the matrices (their
+    potential at the given excitation); sigma then includes their induced charge.
     """
 
     names: tuple
@@ -31,6 +63,7 @@ class CapacitanceResult:
     solver: dict = field(default_factory=dict)
     timings_s: dict = field(default_factory=dict)
     asymmetry: float = 0.0
+    floating: dict = field(default_factory=dict)
 
     @property
     def mutual(self):
@@ -45,6 +78,12 @@ class CapacitanceResult:
     def energy(self):
         """Stored field energy W = 1/2 V^T C V (J) at the given potentials."""
         return 0.5 * float(self.potentials @ self.maxwell @ self.potentials)
+
+    def potentials_of(self, names):
+        """Potential (V) of each named conductor, terminals and floating ones alike."""
+        given = dict(zip(self.names, self.potentials))
+        given.update(self.floating)
+        return np.array([given[n] for n in names])
 
     def panel_sigma(self):
         """Charge density on each panel (C/m^2) at the given potentials."""
@@ -77,6 +116,8 @@ class CapacitanceResult:
         lines += block("Mutual capacitance (diagonal: to infinity/ground)", self.mutual)
         lines += ["", f"panels: {self.n_panels}    stored energy at the given potentials: "
                       f"{format_quantity(self.energy, 'J')}"]
+        for name, volts in self.floating.items():
+            lines.append(f"floating conductor {name}: {volts:.6g} V at the given potentials")
         return "\n".join(lines)
 
     def __str__(self):

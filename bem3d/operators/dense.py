@@ -7,7 +7,7 @@ from scipy.sparse.linalg import LinearOperator
 
 from ..constants import EPS0
 from ..errors import ResourceError
-from ..kernels import assemble_dense
+from ..kernels import assemble_dense, subtract_images
 from . import PairRules, kernel_arguments
 
 
@@ -17,12 +17,13 @@ def dense_bytes(n_panels):
 
 
 class DenseOperator(LinearOperator):
-    """The assembled matrix P (1/F, i.e. V per C of panel charge... times m^2) as a LinearOperator.
+    """The assembled Galerkin matrix P as a LinearOperator.
 
     P maps panel charge densities sigma (C/m^2) to tested potentials int_Tk phi dA (V m^2).
+    ground_z: height (m) of an infinite grounded plane, included by the method of images.
     """
 
-    def __init__(self, panels, eps_r=1.0, rules=PairRules(), memory_limit=None):
+    def __init__(self, panels, eps_r=1.0, rules=PairRules(), memory_limit=None, ground_z=None):
         n = len(panels)
         need = dense_bytes(n)
         if memory_limit is not None and need > memory_limit:
@@ -30,7 +31,14 @@ class DenseOperator(LinearOperator):
                 f"dense matrix for {n} panels needs {need / 2**30:.1f} GiB, more than the "
                 f"{memory_limit / 2**30:.1f} GiB allowed; use fewer panels")
         matrix = np.empty((n, n))
-        assemble_dense(matrix, *kernel_arguments(panels, rules))
+        args = kernel_arguments(panels, rules)
+        assemble_dense(matrix, *args)
+        if ground_z is not None:
+            image = kernel_arguments(panels.mirrored(ground_z), rules)
+            # the image panels' corners, normals, centroids and rule points (their areas,
+            # radii and weights are the panels' own)
+            subtract_images(matrix, *args, image[0], image[1], image[2], image[5], image[7],
+                            image[9])
         matrix *= 1.0 / (4.0 * math.pi * EPS0 * eps_r)
         self.matrix = matrix
         self.rules = rules
