@@ -27,6 +27,9 @@ def _add_model_options(p):
                    help="infinite grounded plane z = Z (mesh unit), by the method of images")
     p.add_argument("--floating", action="append", default=[], metavar="NAME",
                    help="a conductor with zero net charge and unknown potential; repeatable")
+    p.add_argument("--dielectric", action="append", default=[], metavar="FILE=EPS_R",
+                   help="a closed dielectric body (mesh file) and its relative permittivity; "
+                        "repeatable")
 
 
 def _parser():
@@ -75,7 +78,7 @@ def _parser():
 
 
 def _model_from_args(args):
-    from .model import Model, load_model, parse_volts
+    from .model import Model, load_model, parse_dielectrics, parse_volts
 
     if len(args.inputs) == 1 and args.inputs[0].lower().endswith(".toml"):
         model = load_model(args.inputs[0])
@@ -89,6 +92,7 @@ def _model_from_args(args):
     if args.ground_plane is not None:
         model.ground_plane_z = args.ground_plane
     model.floating += args.floating
+    model.dielectrics += parse_dielectrics(args.dielectric)
     if args.out:
         model.output_folder = args.out
     if model.output_folder is None:
@@ -150,6 +154,9 @@ def _run_field(model, request, quiet=False):
 
     start = time.perf_counter()
     panels, warnings = read_conductors(model.meshes, units=model.length_unit)
+    if model.dielectrics:
+        raise ModelError("field maps with dielectric bodies are not supported yet; use "
+                         "'bem3d extract' for their capacitance")
     plan = request.plan(panels, model.ground_z_m)    # a bad request fails here, before the solve
     result = solve_panels(panels, model.volts, model.relative_permittivity, progress=not quiet,
                           ground_z=model.ground_z_m, floating=model.floating)

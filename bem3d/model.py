@@ -7,6 +7,9 @@ A model comes from command-line flags or from a TOML model file such as
     meshes = ["sensor_head.msh"]        # paths relative to this file
     ground_plane_z = 0.0                # optional: infinite grounded plane z = const (length_unit)
     floating = ["lid"]                  # optional: conductors with zero net charge
+    [[dielectric]]                      # optional, repeatable: a closed body of one material
+    mesh = "cover.stl"
+    relative_permittivity = 3.8
     [volts]                             # conductors not listed are at 0 V
     drive = 5.0
     [output]
@@ -27,7 +30,7 @@ from .constants import LENGTH_UNITS
 from .errors import ModelError
 
 _TOP_KEYS = {"length_unit", "relative_permittivity", "meshes", "volts", "output",
-             "ground_plane_z", "floating"}
+             "ground_plane_z", "floating", "dielectric"}
 _OUTPUT_KEYS = {"folder", "spice_name"}
 
 
@@ -44,6 +47,7 @@ class Model:
     source: str = "command line"
     ground_plane_z: float | None = None
     floating: list = field(default_factory=list)
+    dielectrics: list = field(default_factory=list)     # [(mesh path, relative permittivity)]
 
     def __post_init__(self):
         self.meshes = [Path(p) for p in self.meshes]
@@ -64,6 +68,14 @@ class Model:
                 isinstance(f, str) for f in self.floating):
             raise ModelError(f"{self.source}: 'floating' must be a list of conductor names")
         self.floating = list(dict.fromkeys(self.floating))
+        checked = []
+        for path, eps in self.dielectrics:
+            eps = _number(eps, f"relative permittivity of {path}", self.source)
+            if not eps > 0:
+                raise ModelError(f"{self.source}: relative permittivity of {path} must be "
+                                 f"positive, got {eps:g}")
+            checked.append((Path(path), eps))
+        self.dielectrics = checked
 
     @property
     def ground_z_m(self):
@@ -115,11 +127,32 @@ def load_model(path):
     if folder is not None and not isinstance(folder, str) or not isinstance(spice_name, str):
         raise ModelError(f"{path}: [output] folder and spice_name must be strings")
     here = path.parent
+    bodies = data.get("dielectric", [])
+    if not isinstance(bodies, list) or not all(
+            isinstance(b, dict) and set(b) == {"mesh", "relative_permittivity"}
+            and isinstance(b["mesh"], str) for b in bodies):
+        raise ModelError(f"{path}: each [[dielectric]] needs exactly 'mesh' (a file name) and "
+                         "'relative_permittivity'")
     return Model(meshes=[here / m for m in meshes], length_unit=unit,
                  relative_permittivity=data.get("relative_permittivity", 1.0), volts=volts,
                  output_folder=None if folder is None else here / folder,
                  spice_name=spice_name, source=str(path),
-                 ground_plane_z=data.get("ground_plane_z"), floating=data.get("floating", []))
+                 ground_plane_z=data.get("ground_plane_z"), floating=data.get("floating", []),
+                 dielectrics=[(here / b["mesh"], b["relative_permittivity"]) for b in bodies])
+
+
+def parse_dielectrics(items):
+    """[(Path('cover.stl'), 3.8)] from ['cover.stl=3.8', ...]."""
+    bodies = []
+    for item in items or []:
+        name, sep, value = item.rpartition("=")
+        try:
+            bodies.append((Path(name), float(value)))
+        except ValueError:
+            sep = ""
+        if not sep or not name:
+            raise ModelError(f"--dielectric: expected FILE=EPS_R, got '{item}'")
+    return bodies
 
 
 def parse_volts(items, source="--volts"):

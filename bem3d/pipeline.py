@@ -39,13 +39,14 @@ def check_ground_plane(panels, ground_z):
 
 
 def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto", tol=1e-7,
-                 progress=False, ground_z=None, floating=()):
+                 progress=False, ground_z=None, floating=(), dielectrics=()):
     """Capacitance of the conductors in `panels` (metres) in a medium of relative permittivity eps_r.
 
     volts: {conductor name: V}; conductors not named are at 0 V. solver: 'direct' (Cholesky),
     'cg' (conjugate gradients to relative residual tol) or 'auto' (direct up to DIRECT_LIMIT).
     ground_z: height (m) of an infinite grounded plane (method of images), or None.
-    floating: names of conductors with zero net charge and unknown potential."""
+    floating: names of conductors with zero net charge and unknown potential.
+    dielectrics: dielectric.DielectricBody list; eps_r is then the background around them."""
     volts = dict(volts or {})
     unknown = sorted(set(volts) - set(panels.names))
     if unknown:
@@ -57,6 +58,20 @@ def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto"
                          "outcome, not an input")
     if ground_z is not None:
         check_ground_plane(panels, ground_z)
+    if dielectrics:
+        if ground_z is not None:
+            raise ModelError("dielectric bodies together with a ground plane are not supported "
+                             "yet; mesh the ground as a conductor instead")
+        from .dielectric import solve_with_dielectrics
+
+        _log(progress, f"solving {len(panels)} conductor panels with "
+                       f"{len(dielectrics)} dielectric bodies (dense LU) ...")
+        t0 = time.perf_counter()
+        result = solve_with_dielectrics(panels, dielectrics, eps_r, volts, rules)
+        result.timings_s.update({"assembly": 0.0, "solve": time.perf_counter() - t0})
+        result.solver.update({"ground_plane_z_m": None, "floating": list(floating),
+                              "dielectrics": {b.name: b.eps_r for b in dielectrics}})
+        return reduce_floating(result, floating) if floating else result
     if solver == "auto":
         solver = "direct" if len(panels) <= DIRECT_LIMIT else "cg"
     if solver not in ("direct", "cg"):
@@ -93,12 +108,27 @@ def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto"
     return reduce_floating(result, floating) if floating else result
 
 
+def read_dielectrics(model):
+    """The model's dielectric bodies (one closed mesh file each) in metres."""
+    from .dielectric import DielectricBody
+    from .meshio_io import read_conductors
+
+    bodies = []
+    for path, eps in model.dielectrics:
+        panels, _ = read_conductors([path], units=model.length_unit)
+        whole = type(panels)(panels.vertices, np.zeros(len(panels), int), (panels.names[0],))
+        bodies.append(DielectricBody(str(path), eps, whole))
+    return bodies
+
+
 def extract(model, solver="auto", tol=1e-7, rules=PairRules(), progress=False):
     """Read the model's meshes and solve: returns (panels, CapacitanceResult, warnings)."""
     from .meshio_io import read_conductors
 
     panels, warnings = read_conductors(model.meshes, units=model.length_unit)
+    bodies = read_dielectrics(model)
     result = solve_panels(panels, model.volts, model.relative_permittivity, rules, solver, tol,
-                          progress, ground_z=model.ground_z_m, floating=model.floating)
+                          progress, ground_z=model.ground_z_m, floating=model.floating,
+                          dielectrics=bodies)
     result.solver["peak_memory_MiB"] = peak_memory() / 2**20
     return panels, result, warnings

@@ -1,0 +1,87 @@
+"""Dielectric bodies by the equivalent-charge formulation.
+
+References (closed forms, derived from Gauss's law with D = eps E in each spherical layer):
+a conducting sphere of radius a inside concentric dielectric layers ending at radii b_1 < b_2 ...
+has C = 4 pi eps0 / (sum_layers (1/eps_i)(1/r_in - 1/r_out) + 1/b_last); a body with eps_r = 1
+changes nothing; a uniform background eps_r scales C by eps_r.
+"""
+
+import math
+
+import numpy as np
+import pytest
+
+import reference_values as ref
+from bem3d import shapes
+from bem3d.dielectric import DielectricBody, solve_with_dielectrics
+from bem3d.errors import MeshError, ModelError
+from bem3d.geometry import Panels
+from bem3d.pipeline import solve_panels
+from conftest import make_panels
+
+EPS0 = ref.EPS0
+
+
+def body(name, eps_r, mesh):
+    p, t = mesh
+    return DielectricBody(name, eps_r, Panels.from_arrays(p, t, np.zeros(len(t), int), (name,)))
+
+
+def layered_sphere(a, layers):
+    """C of a sphere radius a in concentric layers [(outer radius, eps_r)], then vacuum."""
+    total, r = 0.0, a
+    for outer, eps in layers:
+        total += (1 / eps) * (1 / r - 1 / outer)
+        r = outer
+    return 4 * math.pi * EPS0 / (total + 1 / r)
+
+
+def test_sphere_in_a_concentric_dielectric_shell():
+    def c(m):
+        cond = make_panels(("ball", shapes.octahedral_sphere(1.0, m)))
+        return solve_with_dielectrics(cond, [body("shell", 4.0, shapes.octahedral_sphere(2.0, m))]
+                                      ).maxwell[0, 0]
+    extrapolated = ref.richardson(c(8), c(16))
+    assert extrapolated == pytest.approx(layered_sphere(1.0, [(2.0, 4.0)]), rel=2e-3)
+
+
+def test_nested_bodies_take_the_innermost_permittivity():
+    m = 8
+    cond = make_panels(("ball", shapes.octahedral_sphere(1.0, m)))
+    bodies = [body("outer", 2.0, shapes.octahedral_sphere(2.5, m)),
+              body("inner", 6.0, shapes.octahedral_sphere(1.6, m))]
+    got = solve_with_dielectrics(cond, bodies).maxwell[0, 0]
+    # coarse mesh (512 panels a body): 1.5 %; the shell test above checks convergence
+    assert got == pytest.approx(layered_sphere(1.0, [(1.6, 6.0), (2.5, 2.0)]), rel=1.5e-2)
+
+
+def test_unit_permittivity_body_changes_nothing_and_background_scales():
+    parts = [("a", shapes.octahedral_sphere(1.0, 6)),
+             ("b", shapes.box(1.0, 1.0, 1.0, 4, center=(2.5, 0, 0)))]
+    cond = make_panels(*parts)
+    plain = solve_panels(cond).maxwell
+    same = solve_with_dielectrics(cond, [body("air", 1.0, shapes.octahedral_sphere(5.0, 6))])
+    np.testing.assert_allclose(same.maxwell, plain, rtol=1e-10)
+    # a uniform background eps_r multiplies every entry (closed form)
+    np.testing.assert_allclose(
+        solve_with_dielectrics(cond, [body("air", 3.0, shapes.octahedral_sphere(5.0, 6))],
+                               background=3.0).maxwell, 3.0 * plain, rtol=1e-9)
+
+
+def test_inward_normals_and_open_bodies_are_refused():
+    cond = make_panels(("ball", shapes.octahedral_sphere(1.0, 4)))
+    p, t = shapes.octahedral_sphere(2.0, 4)
+    with pytest.raises(MeshError, match="inwards"):
+        solve_with_dielectrics(cond, [body("flipped", 3.0, (p, t[:, ::-1]))])
+    with pytest.raises(MeshError, match="closed"):
+        solve_with_dielectrics(cond, [body("open", 3.0, (p, t[:-4]))])
+    with pytest.raises(ModelError, match="positive"):
+        solve_with_dielectrics(cond, [body("bad", -1.0, (p, t))])
+
+
+def test_sheet_conductor_on_an_interface_is_refused():
+    # a zero-thickness plate on a box face has different media on its faces
+    plate = shapes.rectangle(0.5, 0.5, 4, 4, center=(0.0, 0.0, 0.5))
+    cond = make_panels(("pad", plate))
+    with pytest.raises(ModelError, match="two faces"):
+        solve_with_dielectrics(cond, [body("board", 4.0, shapes.box(2.0, 2.0, 1.0, 4))])
