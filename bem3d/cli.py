@@ -149,17 +149,15 @@ def _field_request(args, model):
 def _run_field(model, request, quiet=False):
     from .field_map import AIR_BREAKDOWN_V_PER_M, FIELD_CAUTION, map_fields
     from .meshio_io import read_conductors
-    from .pipeline import solve_panels
+    from .pipeline import read_dielectrics, solve_panels
     from .units import format_quantity
 
     start = time.perf_counter()
     panels, warnings = read_conductors(model.meshes, units=model.length_unit)
-    if model.dielectrics:
-        raise ModelError("field maps with dielectric bodies are not supported yet; use "
-                         "'bem3d extract' for their capacitance")
     plan = request.plan(panels, model.ground_z_m)    # a bad request fails here, before the solve
     result = solve_panels(panels, model.volts, model.relative_permittivity, progress=not quiet,
-                          ground_z=model.ground_z_m, floating=model.floating)
+                          ground_z=model.ground_z_m, floating=model.floating,
+                          dielectrics=read_dielectrics(model))
     result.timings_s["total"] = time.perf_counter() - start      # to the capacitance
     record, files = map_fields(panels, result, model, request, plan, warnings,
                                progress=not quiet)

@@ -20,15 +20,15 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.linalg
 
-from .constants import EPS0
 from .errors import MeshError, ModelError
+from .fields import winding_numbers
 from .geometry import Panels
 from .kernels import assemble_normal_field
 from .meshio_io import closed_conductors
 from .operators import PairRules
 from .operators.dense import DenseOperator
 from .quadrature import graded_rule, map_points, triangle_rule
-from .results import CapacitanceResult
+from .results import CapacitanceResult, FieldSources
 
 
 #: Test points per direction of the graded rule on each interface panel (6 x 6 = 36).
@@ -66,30 +66,13 @@ def check_bodies(bodies):
                             "flip the mesh orientation")
 
 
-def _winding(points, panels):
-    """Winding number of a closed surface at points (m, 3): 1 inside, 0 outside.
-    Exact solid angles of flat triangles (Van Oosterom & Strackee 1983, IEEE Trans. BME-30)."""
-    total = np.zeros(len(points))
-    for start in range(0, len(panels), 4096):
-        v = panels.vertices[start:start + 4096]
-        r = v[None, :, :, :] - points[:, None, None, :]            # (m, t, 3, 3)
-        length = np.linalg.norm(r, axis=3)
-        r1, r2, r3 = r[:, :, 0], r[:, :, 1], r[:, :, 2]
-        l1, l2, l3 = length[:, :, 0], length[:, :, 1], length[:, :, 2]
-        num = np.einsum("mtk,mtk->mt", r1, np.cross(r2, r3))
-        den = (l1 * l2 * l3 + np.einsum("mtk,mtk->mt", r1, r2) * l3
-               + np.einsum("mtk,mtk->mt", r1, r3) * l2 + np.einsum("mtk,mtk->mt", r2, r3) * l1)
-        total += np.sum(2.0 * np.arctan2(num, den), axis=1)
-    return total / (4.0 * math.pi)
-
-
 def medium_at(points, bodies, background):
     """Relative permittivity at points (m, 3): that of the smallest body containing each point,
     else the background."""
     eps = np.full(len(points), float(background))
     smallest = np.full(len(points), np.inf)
     for body in bodies:
-        inside = _winding(points, body.panels) > 0.5
+        inside = winding_numbers(body.panels, points) > 0.5
         take = inside & (body.volume < smallest)
         eps[take] = body.eps_r
         smallest[take] = body.volume
@@ -180,7 +163,8 @@ def solve_with_dielectrics(conductors, bodies, background=1.0, volts=None, rules
                          "its two faces is not supported; give it a thickness")
     nc, ni = len(conductors), len(inter)
     both = Panels(np.concatenate([conductors.vertices, inter.vertices]),
-                  np.concatenate([conductors.owner, np.zeros(ni, int)]), conductors.names)
+                  np.concatenate([conductors.owner, conductors.n_conductors + inter.owner]),
+                  conductors.names + inter.names)
     matrix = np.empty((nc + ni, nc + ni))
     # conductor rows: Galerkin potential of all charges in vacuum, (V m^2) per (C/m^2)
     p = DenseOperator(both, eps_r=1.0, rules=rules).matrix
@@ -215,4 +199,5 @@ def solve_with_dielectrics(conductors, bodies, background=1.0, volts=None, rules
         solver={"backend": "dense", "solver": "lu (dielectric interfaces)",
                 "interface_panels": ni, "relative_residual": residual,
                 "relative_permittivity": background, "pair_rules": rules.as_dict()},
-        asymmetry=float(np.max(np.abs(maxwell - maxwell.T)) / np.max(np.abs(np.diag(maxwell)))))
+        asymmetry=float(np.max(np.abs(maxwell - maxwell.T)) / np.max(np.abs(np.diag(maxwell)))),
+        sources=FieldSources(both, total, 1.0, tuple(bodies), float(background)))

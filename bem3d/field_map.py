@@ -9,11 +9,13 @@ from pathlib import Path
 import numpy as np
 
 from .constants import EPS0
+from .dielectric import medium_at
 from .errors import ModelError, ResourceError
 from .export import (atomic_path, surface_polydata, write_image, write_outputs,
                      write_point_table, write_slice)
 from .fields import (Grid, conductor_forces, energy_balance, evaluate, peak_fields,
                      surface_fields)
+from .meshio_io import closed_conductors
 
 #: Largest number of grid points a run may ask for (each point costs ~100 bytes per excitation).
 MAX_GRID_POINTS = 20_000_000
@@ -139,25 +141,52 @@ def _progress_bar(total, label, enabled):
     return update, bar.close
 
 
-def _fields_at(panels, sigma, points, eps_r, label, progress, ground_z):
-    update, close = _progress_bar(len(points), label, progress)
-    try:
-        return evaluate(panels, sigma, points, eps_r, progress=update, ground_z=ground_z)
-    finally:
-        close()
-
-
-def _point_arrays(fields, eps, names, unit_fields):
-    """VTK point arrays: the given excitation, then optionally each conductor at 1 V."""
+def _point_arrays(fields, eps, names, unit_fields, dielectric):
+    """VTK point arrays: the given excitation, then optionally each conductor at 1 V.
+    eps: permittivity (F/m) at each point."""
     arrays = {"phi": fields.phi[:, 0], "E": fields.E[:, 0],
               "E_magnitude": np.linalg.norm(fields.E[:, 0], axis=1),
               "energy_density": fields.energy_density(eps)[:, 0],
               "inside_conductor": fields.inside.astype(np.uint8)}
+    if dielectric:
+        arrays["D"] = eps[:, None] * fields.E[:, 0]
+        arrays["eps_r"] = eps / EPS0
     if unit_fields:
         for j, name in enumerate(names, start=1):
             arrays[f"phi_unit_{name}"] = fields.phi[:, j]
             arrays[f"E_unit_{name}"] = fields.E[:, j]
     return arrays
+
+
+class _Evaluator:
+    """Fields of one result at any points: its sources (conductors, plus dielectric
+    interfaces), the given excitation first, then each conductor at 1 V if asked."""
+
+    def __init__(self, panels, result, unit_fields, progress):
+        self.source = result.field_sources(panels)
+        given = self.source.sigma @ result.potentials
+        self.sigma = np.column_stack([given] + ([self.source.sigma] if unit_fields else []))
+        self.ground_z = result.solver.get("ground_plane_z_m")
+        self.progress = progress
+        # only conductors count for the inside marker, not dielectric interfaces
+        self.inside_of = np.zeros(len(self.source.panels))
+        self.inside_of[:len(panels)] = closed_conductors(panels)[panels.owner]
+        self.given_source = (self.source.panels, given, self.source.kernel_eps_r)
+
+    def fields(self, points, label, columns=None):
+        update, close = _progress_bar(len(points), label, self.progress)
+        try:
+            return evaluate(self.source.panels, self.sigma[:, :columns], points,
+                            self.source.kernel_eps_r, progress=update, ground_z=self.ground_z,
+                            inside_of=self.inside_of)
+        finally:
+            close()
+
+    def eps(self, points):
+        """Permittivity (F/m) at points (m, 3)."""
+        if not self.source.bodies:
+            return np.full(len(points), EPS0 * self.source.background)
+        return EPS0 * medium_at(points, self.source.bodies, self.source.background)
 
 
 def map_fields(panels, result, model, request, plan, warnings=(), progress=False):
@@ -166,29 +195,27 @@ def map_fields(panels, result, model, request, plan, warnings=(), progress=False
     plan: request.plan(panels), made before the solve so that a bad request costs nothing.
 
     record holds the keys added to result.json (energies J, peaks V/m, forces N, torques N m)."""
-    eps_r = model.relative_permittivity
-    eps = EPS0 * eps_r
     folder = Path(model.output_folder)
-    sigma = result.panel_sigma()[:, None]
-    if request.unit_fields:
-        sigma = np.hstack([sigma, result.sigma])
     grid, slice_grids, listed = plan
-    ground_z = result.solver.get("ground_plane_z_m")
+    ev = _Evaluator(panels, result, request.unit_fields, progress)
+    dielectric = bool(ev.source.bodies)
 
     start = time.perf_counter()
-    grid_fields = _fields_at(panels, sigma, grid.points(), eps_r, "grid", progress, ground_z)
+    grid_points = grid.points()
+    grid_fields = ev.fields(grid_points, "grid")
+    grid_eps = ev.eps(grid_points)
     boundary = grid.boundary()
-    boundary_fields = _fields_at(panels, sigma[:, :1], boundary[0], eps_r, "box faces", progress,
-                                 ground_z)
+    boundary_fields = ev.fields(boundary[0], "box faces", columns=1)
     balance = energy_balance(panels, result, grid, grid_fields, boundary_fields, boundary,
-                             ground_z)
-    surface = surface_fields(panels, result.panel_sigma(), eps_r, ground_z=ground_z)
+                             ev.ground_z, grid_eps, ev.eps(boundary[0]), ev.given_source)
+    size = float(np.ptp(panels.vertices.reshape(-1, 3), axis=0).max())
+    eps_panel = ev.eps(panels.centroids + 1e-6 * size * panels.normals) / EPS0
+    surface = surface_fields(panels, result.panel_sigma(), eps_panel, ground_z=ev.ground_z,
+                             source=ev.given_source)
     force, torque = conductor_forces(panels, surface)
     peaks = peak_fields(panels, surface)
-    slice_fields = [_fields_at(panels, sigma, sgrid.points(), eps_r, "slice", progress, ground_z)
-                    for _, _, sgrid in slice_grids]
-    listed_fields = None if listed is None else evaluate(panels, sigma, listed, eps_r,
-                                                         ground_z=ground_z)
+    slice_fields = [ev.fields(sgrid.points(), "slice") for _, _, sgrid in slice_grids]
+    listed_fields = None if listed is None else ev.fields(listed, "points")
     result.timings_s["fields"] = time.perf_counter() - start
 
     record = dict(balance)
@@ -206,12 +233,14 @@ def map_fields(panels, result, model, request, plan, warnings=(), progress=False
                           {"E_normal": surface.normal_field, "E_face_max": face_max,
                            "force_density": surface.panel_force / panels.areas[:, None]})
     target = folder / "field.vti"
-    write_image(grid, _point_arrays(grid_fields, eps, result.names, request.unit_fields), target)
+    write_image(grid, _point_arrays(grid_fields, grid_eps, result.names, request.unit_fields,
+                                    dielectric), target)
     files.append(target)
     slice_outputs = []
     for (axis, value, sgrid), sfields in zip(slice_grids, slice_fields):
         target = folder / f"slice_{'xyz'[axis]}_{value:.6g}.vtp"
-        arrays = _point_arrays(sfields, eps, result.names, request.unit_fields)
+        arrays = _point_arrays(sfields, ev.eps(sgrid.points()), result.names,
+                               request.unit_fields, dielectric)
         write_slice(sgrid, arrays, target)
         files.append(target)
         slice_outputs.append((target, axis, arrays))
@@ -220,7 +249,7 @@ def map_fields(panels, result, model, request, plan, warnings=(), progress=False
         write_point_table(listed, {"phi_V": listed_fields.phi[:, 0],
                                    "E_V_per_m": listed_fields.E[:, 0],
                                    "energy_density_J_per_m3":
-                                       listed_fields.energy_density(eps)[:, 0],
+                                       listed_fields.energy_density(ev.eps(listed))[:, 0],
                                    "inside_conductor": listed_fields.inside.astype(int)}, target)
         files.append(target)
 

@@ -37,22 +37,26 @@ class PointFields:
     inside: np.ndarray
 
     def energy_density(self, eps):
-        """1/2 eps |E|^2 (J/m^3), (m, k)."""
-        return 0.5 * eps * np.sum(self.E**2, axis=-1)
+        """1/2 E.D = 1/2 eps |E|^2 (J/m^3), (m, k); eps (F/m) a number or one per point."""
+        eps = np.asarray(eps, float)
+        return 0.5 * (eps[:, None] if eps.ndim else eps) * np.sum(self.E**2, axis=-1)
 
 
 def evaluate(panels, sigma, points, eps_r=1.0, rules=FieldRules(), chunk=20000, progress=None,
-             ground_z=None):
+             ground_z=None, inside_of=None):
     """phi and E at points (m, 3) in metres from panel charge densities sigma (n, k) in C/m^2.
 
     A point inside a closed conductor is flagged in `inside` (its field is ~0 there).
     progress, if given, is called with the number of points done after each chunk.
     ground_z: a grounded plane z = ground_z (m): the panels' mirror images carry -sigma
-    (the field is physical above the plane only)."""
+    (the field is physical above the plane only). inside_of: 1 for the panels whose closed
+    surfaces `inside` refers to (default: every closed conductor's panels), else 0."""
     sigma = np.ascontiguousarray(np.atleast_2d(np.asarray(sigma, float).T).T)
     points = np.ascontiguousarray(np.asarray(points, float).reshape(-1, 3))
     k = sigma.shape[1]
-    closed = closed_conductors(panels)[panels.owner].astype(np.float64)
+    if inside_of is None:
+        inside_of = closed_conductors(panels)[panels.owner]
+    closed = np.asarray(inside_of, np.float64)
     if ground_z is not None:
         image = panels.mirrored(ground_z)
         panels = Panels(np.concatenate([panels.vertices, image.vertices]),
@@ -78,6 +82,23 @@ def evaluate(panels, sigma, points, eps_r=1.0, rules=FieldRules(), chunk=20000, 
     return PointFields(phi * scale, grad * scale, winding > 0.5)
 
 
+def winding_numbers(panels, points):
+    """Winding number (m,) of the closed surface `panels` at points (m, 3): 1 inside, 0 outside
+    (exact solid angles near the surface, one-point ones far away)."""
+    points = np.ascontiguousarray(np.asarray(points, float).reshape(-1, 3))
+    bary_near, w_near = triangle_rule(5)
+    bary_mid, w_mid = triangle_rule(2)
+    winding = np.zeros(len(points))
+    rules = FieldRules()
+    evaluate_points(points, np.zeros((len(panels), 1)), np.ones(len(panels)), panels.vertices,
+                    panels.normals, panels.centroids, panels.radii, panels.areas,
+                    map_points(panels.vertices, bary_mid), w_mid,
+                    map_points(panels.vertices, bary_near), w_near, rules.near, rules.mid,
+                    rules.far, np.zeros((len(points), 1)), np.zeros((len(points), 1, 3)),
+                    winding)
+    return winding
+
+
 @dataclass
 class SurfaceFields:
     """Per-panel fields for one excitation: sigma (C/m^2), E_n = sigma/eps (V/m) on the normal
@@ -91,17 +112,22 @@ class SurfaceFields:
     closed: np.ndarray
 
 
-def surface_fields(panels, sigma, eps_r=1.0, rules=FieldRules(), ground_z=None):
-    """Fields and forces on the panels for charge density sigma (n,) C/m^2.
+def surface_fields(panels, sigma, eps_r=1.0, rules=FieldRules(), ground_z=None, source=None):
+    """Fields and forces on the conductor panels for free charge density sigma (n,) C/m^2.
 
-    On a closed conductor the field just outside is sigma/eps n and the force per area is the
-    Maxwell stress sigma^2/(2 eps) n. An open sheet carries the charge of both faces summed,
-    so there the faces see E_pv +- sigma/(2 eps) n, with E_pv the principal value (mean of both
-    faces) at the centroid, and the force is sigma A E_pv; that form converges only like the
-    panel size (measured), so forces on sheets are better taken by virtual work."""
-    eps = EPS0 * eps_r
+    eps_r: relative permittivity around each panel (a number or (n,)). source: (panels, charge
+    density, kernel eps_r) radiating the field when it is more than these panels' own sigma
+    (dielectric interfaces). On a closed conductor the field just outside is sigma/eps n and
+    the force per area is the Maxwell stress sigma^2/(2 eps) n. An open sheet carries the
+    charge of both faces summed, so there the faces see E_pv +- sigma/(2 eps) n, with E_pv the
+    principal value (mean of both faces) at the centroid, and the force is sigma A E_pv; that
+    form converges only like the panel size (measured), so forces on sheets are better taken
+    by virtual work."""
+    eps = EPS0 * np.broadcast_to(np.asarray(eps_r, float), sigma.shape)
+    src_panels, src_sigma, kernel_eps_r = source or (panels, sigma, eps_r)
     closed = closed_conductors(panels)[panels.owner]
-    pv = evaluate(panels, sigma, panels.centroids, eps_r, rules, ground_z=ground_z).E[:, 0]
+    pv = evaluate(src_panels, src_sigma, panels.centroids, kernel_eps_r, rules,
+                  ground_z=ground_z).E[:, 0]
     outside = (sigma / eps)[:, None] * panels.normals
     jump = 0.5 * outside
     faces = np.where(closed[:, None, None], np.stack([outside, 0 * outside], axis=1),
@@ -224,8 +250,9 @@ class Grid:
 def exterior_energy(phi, E, normals, weights, eps):
     """Energy (J) of the field outside a closed box from phi and E on its surface:
     W_out = 1/2 eps oint phi E.n dA (Green's first identity on the exterior, where
-    laplace(phi) = 0 and phi ~ 1/r at infinity; n points out of the box)."""
-    return 0.5 * eps * float(np.sum(weights * phi * np.einsum("ij,ij->i", E, normals)))
+    laplace(phi) = 0 and phi ~ 1/r at infinity; n points out of the box). eps (F/m): a number
+    or one per surface point (the medium at the box)."""
+    return 0.5 * float(np.sum(eps * weights * phi * np.einsum("ij,ij->i", E, normals)))
 
 
 def multipole_fields(points, charges, centre, dipole, eps):
@@ -240,31 +267,41 @@ def multipole_fields(points, charges, centre, dipole, eps):
     return phi, E
 
 
-def energy_balance(panels, result, grid, grid_fields, boundary_fields, boundary, ground_z=None):
+def energy_balance(panels, result, grid, grid_fields, boundary_fields, boundary, ground_z=None,
+                   grid_eps=None, box_eps=None, source=None):
     """The stored energy three ways (J), for the result's potentials.
 
     grid_fields: PointFields on grid.points(); boundary_fields: PointFields on the box faces
-    (grid.boundary()). Returns a dict: from the matrix 1/2 V^T C V, from the charges
-    1/2 sum Q_i V_i, the grid integral of 1/2 eps |E|^2 outside conductors, the energy outside
-    the box from the computed surface field (exact identity) and from the monopole and dipole
-    moments alone, and the fraction of the energy inside the box."""
+    (grid.boundary()); with a grounded plane z = ground_z the box must stand on it.
+    grid_eps (F/m, one per grid point) and box_eps (F/m, the medium at the box faces) default
+    to the uniform medium; source: (panels, charge density, kernel eps_r) radiating the field
+    when it is more than the conductors' free charge (dielectric interfaces).
+    Returns a dict: from the matrix 1/2 V^T C V, from the charges 1/2 sum Q_i V_i, the grid
+    integral of 1/2 E.D outside conductors, the energy outside the box from the computed
+    surface field (exact identity) and from the monopole and dipole moments alone, and the
+    fraction of the energy inside the box."""
     eps = EPS0 * result.solver.get("relative_permittivity", 1.0)
-    density = grid_fields.energy_density(eps)[:, 0]
+    grid_eps = eps if grid_eps is None else grid_eps
+    box_eps = eps if box_eps is None else box_eps
+    src_panels, src_sigma, kernel_eps_r = source or (panels, result.panel_sigma(),
+                                                     eps / EPS0)
+    density = grid_fields.energy_density(grid_eps)[:, 0]
     density[grid_fields.inside] = 0.0
     w_grid = float(np.sum(density * grid.trapezoid_weights()))
     points, normals, weights = boundary
     w_tail = exterior_energy(boundary_fields.phi[:, 0], boundary_fields.E[:, 0], normals,
-                             weights, eps)
-    q_panel = result.panel_sigma() * panels.areas
+                             weights, box_eps)
+    q_panel = src_sigma * src_panels.areas
     total_q = float(q_panel.sum())
     centre = np.mean(points, axis=0)
-    dipole = (q_panel[:, None] * (panels.centroids - centre)).sum(axis=0)
+    dipole = (q_panel[:, None] * (src_panels.centroids - centre)).sum(axis=0)
     if ground_z is not None:     # charges and their images: no net charge, a vertical dipole
         centre[2] = ground_z
-        dipole = np.array([0.0, 0.0, 2.0 * float(q_panel @ (panels.centroids[:, 2] - ground_z))])
+        dipole = np.array([0.0, 0.0,
+                           2.0 * float(q_panel @ (src_panels.centroids[:, 2] - ground_z))])
         total_q = 0.0
-    phi_md, e_md = multipole_fields(points, total_q, centre, dipole, eps)
-    w_tail_md = exterior_energy(phi_md, e_md, normals, weights, eps)
+    phi_md, e_md = multipole_fields(points, total_q, centre, dipole, EPS0 * kernel_eps_r)
+    w_tail_md = exterior_energy(phi_md, e_md, normals, weights, box_eps)
     w_matrix = result.energy
     return {
         "energy_J": w_matrix,

@@ -1,6 +1,6 @@
 """Capacitance matrices, charges and stored energy from the solved panel charges (numpy only)."""
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -12,6 +12,20 @@ def mutual_from_maxwell(maxwell):
     mutual = -np.array(maxwell, dtype=float)
     np.fill_diagonal(mutual, np.sum(maxwell, axis=1))
     return mutual
+
+
+@dataclass(frozen=True)
+class FieldSources:
+    """What radiates the field: panels (conductors first, then any dielectric interfaces), their
+    charge density per volt on each conductor (n, n_conductors), C/m^2, taken in a uniform
+    medium of relative permittivity kernel_eps_r; and the dielectric bodies, if any, with the
+    background permittivity, to say which medium a point is in."""
+
+    panels: object
+    sigma: np.ndarray
+    kernel_eps_r: float = 1.0
+    bodies: tuple = ()
+    background: float = 1.0
 
 
 def reduce_floating(result, floating):
@@ -37,11 +51,15 @@ def reduce_floating(result, floating):
     sigma = result.sigma[:, t] + result.sigma[:, f] @ transfer
     v_t = result.potentials[t]
     names = tuple(result.names[i] for i in t)
+    sources = result.sources
+    if sources is not None:
+        sources = replace(sources, sigma=sources.sigma[:, t] + sources.sigma[:, f] @ transfer)
     return CapacitanceResult(
         names=names, maxwell=0.5 * (reduced + reduced.T), sigma=sigma, potentials=v_t,
         n_panels=result.n_panels, solver=result.solver, timings_s=result.timings_s,
         asymmetry=result.asymmetry,
-        floating={result.names[i]: float(v) for i, v in zip(f, transfer @ v_t)})
+        floating={result.names[i]: float(v) for i, v in zip(f, transfer @ v_t)},
+        sources=sources)
 
 
 @dataclass
@@ -53,6 +71,8 @@ class CapacitanceResult:
     asymmetry is max|C - C^T| / max C_ii of the matrix as solved, before it was symmetrised.
     floating: {name: V} of conductors with zero net charge left out of the matrices (their
     potential at the given excitation); sigma then includes their induced charge.
+    sources: where the field comes from when it is not just the conductors' sigma (dielectric
+    interfaces carry bound charge).
     """
 
     names: tuple
@@ -64,6 +84,14 @@ class CapacitanceResult:
     timings_s: dict = field(default_factory=dict)
     asymmetry: float = 0.0
     floating: dict = field(default_factory=dict)
+    sources: FieldSources | None = None
+
+    def field_sources(self, panels):
+        """FieldSources of this result (the conductor panels alone unless dielectrics)."""
+        if self.sources is not None:
+            return self.sources
+        eps_r = self.solver.get("relative_permittivity", 1.0)
+        return FieldSources(panels, self.sigma, eps_r, (), eps_r)
 
     @property
     def mutual(self):
