@@ -74,6 +74,10 @@ def _parser():
     p.add_argument("inputs", nargs="+", metavar="INPUT", help="mesh files")
     p.add_argument("--units", default="m", help="length unit of the meshes (default m)")
     p.add_argument("--json", action="store_true", help="print the report as JSON")
+
+    from . import converge, sweep
+    sweep.add_sweep_parser(sub)
+    converge.add_converge_parser(sub)
     return parser
 
 
@@ -250,6 +254,9 @@ def main(argv=None):
             model = _model_from_args(args)
             _run_field(model, _field_request(args, model), quiet=args.quiet)
             return 0
+        if args.command in ("sweep", "converge"):
+            from . import converge, sweep
+            return sweep.run_sweep(args) if args.command == "sweep" else converge.run_converge(args)
         if args.command == "check-mesh":
             return _check_mesh(args)
         return _demo(args)
