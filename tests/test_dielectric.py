@@ -133,3 +133,25 @@ def test_energy_balance_with_a_dielectric_shell(shelled_sphere):
                              grid_eps=EPS0 * medium_at(grid.points(), [shell], 1.0),
                              box_eps=EPS0, source=(src.panels, sigma, 1.0))
     assert balance["energy_grid_plus_outside_J"] == pytest.approx(result.energy, rel=1e-2)
+
+
+def test_dielectric_slab_between_coaxial_disks():
+    # Love 1949 (reference_values.coaxial_disks) for the disks in vacuum; with a slab of eps_r
+    # around them the two-terminal capacitance lies between the vacuum value and eps_r times it
+    # (all space filled; closed form scaling) and tends to eps_r times Love's value as the gap
+    # closes and the fringe field, partly outside the slab, loses weight.
+    eps_r = 4.0
+    disk = shapes.disk(1.0, 8, grading=1.0)
+    ratios = []
+    for gap in (0.2, 0.1):
+        cond = make_panels(("bottom", disk), ("top", (disk[0] + [0, 0, gap], disk[1])))
+        slab = body("slab", eps_r, shapes.box(2.4, 2.4, gap + 0.1, 12, grading=0.5,
+                                              center=(0, 0, gap / 2)))
+        two = lambda c: (c[0, 0] - c[0, 1]) / 2          # noqa: E731
+        vacuum = two(solve_panels(cond).maxwell)
+        with_slab = two(solve_with_dielectrics(cond, [slab]).maxwell)
+        love = two(ref.coaxial_disks(1.0, gap))
+        assert vacuum == pytest.approx(love, rel=1e-2)
+        assert vacuum < with_slab < eps_r * vacuum
+        ratios.append(with_slab / (eps_r * love))
+    assert 0.85 < ratios[0] < ratios[1] < 1.0
