@@ -144,6 +144,12 @@ class CapacitanceResult:
         lines += block("Mutual capacitance (diagonal: to infinity/ground)", self.mutual)
         lines += ["", f"panels: {self.n_panels}    stored energy at the given potentials: "
                       f"{format_quantity(self.energy, 'J')}"]
+        checks = self.checks()
+        failed = [k.replace("_", " ") for k, ok in checks.items()
+                  if k != "asymmetry_relative" and not ok]
+        lines.append(f"checks: asymmetry {checks['asymmetry_relative']:.1e} (symmetrised); "
+                     + ("signs and diagonal dominance hold" if not failed
+                        else "FAILED: " + ", ".join(failed)))
         for name, volts in self.floating.items():
             lines.append(f"floating conductor {name}: {volts:.6g} V at the given potentials")
         return "\n".join(lines)
