@@ -18,5 +18,7 @@ def prefix_for(values):
 
 def format_quantity(value, unit):
     """'12.34 fF' style text for one value in SI base units."""
+    if value == 0:
+        return f"0 {unit}"
     scale, prefix = prefix_for([value])
     return f"{value / scale:.5g} {prefix}{unit}"
