@@ -28,7 +28,7 @@ from .meshio_io import closed_conductors
 from .operators import PairRules
 from .operators.dense import DenseOperator
 from .quadrature import graded_rule, map_points, triangle_rule
-from .results import CapacitanceResult, FieldSources
+from .results import CapacitanceResult, FieldSources, potential_vector
 
 
 #: Test points per direction of the graded rule on each interface panel (6 x 6 = 36).
@@ -190,8 +190,7 @@ def solve_with_dielectrics(conductors, bodies, background=1.0, volts=None, rules
     total = scipy.linalg.lu_solve(scipy.linalg.lu_factor(matrix), rhs)
     free = eps_out[:, None] * total[:nc]
     maxwell = conductors.excitation().T @ free
-    volts = dict(volts or {})
-    potentials = np.array([volts.get(n, 0.0) for n in conductors.names])
+    potentials = potential_vector(conductors.names, dict(volts or {}))
     residual = float(np.linalg.norm(matrix @ total - rhs) / np.linalg.norm(rhs))
     return CapacitanceResult(
         names=conductors.names, maxwell=0.5 * (maxwell + maxwell.T), sigma=free,

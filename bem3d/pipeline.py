@@ -10,7 +10,7 @@ from .errors import ModelError, ResourceError
 from .operators import PairRules
 from .operators.dense import DenseOperator, dense_bytes
 from .resources import available_memory, peak_memory
-from .results import CapacitanceResult, reduce_floating
+from .results import CapacitanceResult, potential_vector, reduce_floating
 from .solve import solve_cg, solve_direct
 
 #: Above this many panels the dense backend solves by CG instead of Cholesky.
@@ -48,14 +48,7 @@ def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto"
     floating: names of conductors with zero net charge and unknown potential.
     dielectrics: dielectric.DielectricBody list; eps_r is then the background around them."""
     volts = dict(volts or {})
-    unknown = sorted(set(volts) - set(panels.names))
-    if unknown:
-        raise ModelError(f"--volts: no conductor named {', '.join(unknown)} "
-                         f"(conductors: {', '.join(panels.names)})")
-    fixed = sorted(set(volts) & set(floating))
-    if fixed:
-        raise ModelError(f"--volts: {', '.join(fixed)} is floating; its potential is an "
-                         "outcome, not an input")
+    potentials = potential_vector(panels.names, volts, floating)
     if ground_z is not None:
         check_ground_plane(panels, ground_z)
     if dielectrics:
@@ -95,7 +88,6 @@ def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto"
         report = solve_cg(operator, rhs, tol=tol)
     timings["solve"] = time.perf_counter() - t0
     maxwell = rhs.T @ report.charges
-    potentials = np.array([volts.get(name, 0.0) for name in panels.names])
     settings = {"backend": "dense", "solver": report.method, "iterations": report.iterations,
                 "relative_residual": report.relative_residual, "tolerance": tol,
                 "relative_permittivity": eps_r, "pair_rules": rules.as_dict(),

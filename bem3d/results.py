@@ -28,6 +28,23 @@ class FieldSources:
     background: float = 1.0
 
 
+def potential_vector(names, volts, floating=()):
+    """Potentials (V) of the conductors `names` from {name: V} (others at 0 V); ModelError if a
+    name is no conductor or a floating conductor is given a potential."""
+    from .errors import ModelError
+
+    for option, given in (("--volts", volts), ("--floating", floating)):
+        unknown = sorted(set(given) - set(names))
+        if unknown:
+            raise ModelError(f"{option}: no conductor named {', '.join(unknown)} "
+                             f"(conductors: {', '.join(names)})")
+    fixed = sorted(set(volts) & set(floating))
+    if fixed:
+        raise ModelError(f"--volts: {', '.join(fixed)} is floating; its potential is an "
+                         "outcome, not an input")
+    return np.array([volts.get(n, 0.0) for n in names])
+
+
 def reduce_floating(result, floating):
     """The result with the named conductors floating: zero net charge, unknown potential.
 

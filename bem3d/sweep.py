@@ -43,7 +43,7 @@ from .errors import Bem3dError, MeshError, ModelError
 from .export import atomic_path, write_outputs
 from .geometry import Panels
 from .operators import PairRules
-from .results import CapacitanceResult, mutual_from_maxwell, reduce_floating
+from .results import CapacitanceResult, mutual_from_maxwell, potential_vector, reduce_floating
 from .units import prefix_for
 
 #: Largest exit code used for "this many cases failed" (126 and above mean other things to shells).
@@ -365,21 +365,6 @@ def load_cached(path, panels):
         return None
     result.solver["reused_from_cache"] = True
     return result
-
-
-def potential_vector(names, volts, floating=()):
-    """Potentials (V) of the conductors `names` from {name: V} (others at 0 V); ModelError if a
-    name is no conductor or a floating conductor is given a potential."""
-    for option, given in (("--volts", volts), ("--floating", floating)):
-        unknown = sorted(set(given) - set(names))
-        if unknown:
-            raise ModelError(f"{option}: no conductor named {', '.join(unknown)} "
-                             f"(conductors: {', '.join(names)})")
-    fixed = sorted(set(volts) & set(floating))
-    if fixed:
-        raise ModelError(f"--volts: {', '.join(fixed)} is floating; its potential is an "
-                         "outcome, not an input")
-    return np.array([volts.get(n, 0.0) for n in names])
 
 
 def with_potentials(result, volts, floating=()):
