@@ -1,0 +1,316 @@
+"""Compressed Galerkin single-layer operator: a hierarchical matrix (H-matrix).
+
+Panels are clustered by bounding-box bisection; blocks of cluster pairs with
+min(diam) <= eta * dist are admissible and approximated by adaptive cross approximation with
+partial pivoting (Bebendorf 2000, Numer. Math. 86, 565-589) followed by QR/SVD recompression to
+the block tolerance; all other blocks are leaves filled densely with the dense backend's pair
+integrals (Hackbusch 1999, Computing 62, 89-108; Börm, Grasedyck & Hackbusch 2003, Hierarchical
+matrices, lecture notes 21, MPI Leipzig). Storage and work grow like N log N.
+"""
+
+import math
+from dataclasses import asdict, dataclass
+
+import numba
+import numpy as np
+from scipy.sparse.linalg import LinearOperator
+from threadpoolctl import threadpool_limits
+
+from ..constants import EPS0
+from ..errors import ResourceError
+from ..geometry import Panels
+from . import PairRules, kernel_arguments
+from . import hkernels
+from .cluster import ClusterTree, block_partition
+
+#: Room (float64 numbers) for the ACA factors of one batch of admissible blocks.
+BATCH_NUMBERS = 2**24
+#: Shares of a block's tolerance given to ACA's stopping test and to the SVD truncation: ACA's
+#: estimate of its own error can be a few times too small, so it gets the smaller share.
+ACA_SHARE, SVD_SHARE = 0.05, 0.5
+#: Admissible blocks whose break-even rank is below this are filled dense without trying ACA.
+DENSE_BELOW = 8
+#: Admissible blocks whose ranks are measured to estimate the memory before assembly.
+RANK_SAMPLES = 400
+
+
+@dataclass(frozen=True)
+class Compression:
+    """Settings of the compressed backend.
+
+    tolerance: relative Frobenius-norm accuracy of every admissible block (ACA to a tenth of
+    it, then SVD truncation to the rest). eta: admissibility min(diam) <= eta * dist. leaf_size:
+    most panels in a leaf cluster. max_rank: a block needing more is stored dense."""
+
+    tolerance: float = 1e-5
+    eta: float = 1.5
+    leaf_size: int = 32
+    max_rank: int = 128
+
+    def as_dict(self):
+        return asdict(self)
+
+
+def entry_arguments(panels, rules, ground_z=None):
+    """The tuple hkernels' entry function takes: kernel_arguments of the panels, then the image
+    panels' corners, normals, centroids and touch/near/mid rule points in the plane
+    z = ground_z (m), and whether to use them (without a plane the panels' own arrays stand
+    in, unused)."""
+    args = kernel_arguments(panels, rules)
+    image = args if ground_z is None else kernel_arguments(panels.mirrored(ground_z), rules)
+    return args + (image[0], image[1], image[2], image[5], image[7], image[9],
+                   ground_z is not None)
+
+
+def _ranges(tree, pairs):
+    # (row0, rows, col0, cols) of cluster pairs, in cluster numbering
+    t, s = pairs[:, 0], pairs[:, 1]
+    return np.ascontiguousarray(np.stack([tree.start[t], tree.end[t] - tree.start[t],
+                                          tree.start[s], tree.end[s] - tree.start[s]], axis=1))
+
+
+def _room(blocks, max_rank):
+    # break-even rank rows*cols/(rows+cols): above it the dense block is smaller
+    m, n = blocks[:, 1], blocks[:, 3]
+    return np.minimum(max_rank, (m * n) // (m + n))
+
+
+def _compress(blocks, compression, kargs, budget=None):
+    """Ranks (-1: store dense) and compressed factors of admissible blocks, in batches.
+
+    budget: bytes the factors may take; passing it stops the run with ResourceError."""
+    kmax = _room(blocks, compression.max_rank)
+    ranks = np.empty(len(blocks), np.int64)
+    pieces, start = [], 0
+    eps = compression.tolerance
+    while start < len(blocks):
+        need = np.cumsum(kmax[start:] * (blocks[start:, 1] + blocks[start:, 3]))
+        stop = start + max(1, int(np.searchsorted(need, BATCH_NUMBERS, side="right")))
+        batch = blocks[start:stop]
+        slots = np.concatenate(([0], need[:stop - start]))
+        scratch = np.empty(slots[-1])
+        # each thread runs its own small LAPACK calls: a threaded BLAS inside would oversubscribe
+        with threadpool_limits(limits=1, user_api="blas"):
+            hkernels.compress_blocks(batch, slots, scratch, ranks[start:stop], ACA_SHARE * eps,
+                                     SVD_SHARE * eps, kargs)
+        r = np.maximum(ranks[start:stop], 0)
+        offsets = np.concatenate(([0], np.cumsum(r * (batch[:, 1] + batch[:, 3]))))
+        piece = np.empty(offsets[-1])
+        hkernels.gather_blocks(batch, slots, ranks[start:stop], scratch, offsets, piece)
+        pieces.append(piece)
+        start = stop
+        held = 8 * sum(len(p) for p in pieces)
+        if budget is not None and held > budget:
+            raise ResourceError(
+                f"the low-rank blocks outgrew their memory estimate ({held / 2**30:.1f} GiB "
+                f"after {stop} of {len(blocks)} blocks, {budget / 2**30:.1f} GiB allowed); "
+                "coarsen the mesh or loosen the tolerance")
+    return ranks, pieces
+
+
+def _concatenate(pieces):
+    # one array without holding two copies: pages of `out` become resident only as filled
+    out = np.empty(sum(len(p) for p in pieces))
+    pos = 0
+    while pieces:
+        piece = pieces.pop(0)
+        out[pos:pos + len(piece)] = piece
+        pos += len(piece)
+        del piece
+    return out
+
+
+def _groups(cost, n_groups):
+    # contiguous runs of blocks with about equal total cost, one per thread
+    total = np.concatenate(([0.0], np.cumsum(cost, dtype=np.float64)))
+    cuts = np.searchsorted(total, total[-1] * np.arange(1, n_groups) / n_groups)
+    return np.concatenate(([0], cuts, [len(cost)])).astype(np.int64)
+
+
+class HMatrixPlan:
+    """The block structure of a compressed operator and its memory, known before assembly.
+
+    panels: Panels (m). Builds the cluster tree and block partition, renumbers the panels and
+    measures the ranks of a sample of admissible blocks to estimate the low-rank storage."""
+
+    def __init__(self, panels, rules=PairRules(), compression=Compression(), ground_z=None):
+        self.compression, self.rules = compression, rules
+        self.tree = ClusterTree.build(panels.vertices, panels.centroids, compression.leaf_size)
+        near, far = block_partition(self.tree, compression.eta)
+        rng = np.random.default_rng(0)
+        # a shuffled block order balances the threads' work in every parallel loop
+        near = _ranges(self.tree, near[rng.permutation(len(near))])
+        far = _ranges(self.tree, far[rng.permutation(len(far))])
+        small = _room(far, compression.max_rank) < DENSE_BELOW
+        self.near = np.concatenate((near, far[small]))
+        self.far = far[~small]
+        self.n = len(panels)
+        self.panels = Panels(panels.vertices[self.tree.perm], panels.owner[self.tree.perm],
+                             panels.names)
+        self.kargs = entry_arguments(self.panels, rules, ground_z)
+        self.dense_numbers = int(np.sum(self.near[:, 1] * self.near[:, 3]))
+        self.lowrank_numbers = self._estimate_lowrank()
+
+    def _estimate_lowrank(self):
+        # ranks of a sample of blocks of each size class (log2 of rows*cols) stand for the class
+        if len(self.far) == 0:
+            return 0
+        size_class = np.log2(self.far[:, 1] * self.far[:, 3]).astype(np.int64)
+        rng = np.random.default_rng(1)
+        pick = np.unique(np.concatenate([
+            rng.choice(np.flatnonzero(size_class == c),
+                       min(max(2, RANK_SAMPLES * np.sum(size_class == c) // len(self.far)),
+                           np.sum(size_class == c)), replace=False)
+            for c in np.unique(size_class)]))
+        ranks, _ = _compress(self.far[pick], self.compression, self.kargs)
+        per_number = np.zeros(size_class.max() + 1)
+        for c in np.unique(size_class):
+            sample = size_class[pick] == c
+            b = self.far[pick][sample]
+            store = np.where(ranks[sample] < 0, b[:, 1] * b[:, 3],
+                             ranks[sample] * (b[:, 1] + b[:, 3]))
+            per_number[c] = store.sum() / np.sum(b[:, 1] * b[:, 3])
+        return int(np.sum(per_number[size_class] * self.far[:, 1] * self.far[:, 3]))
+
+    def operator_bytes(self):
+        """Estimated bytes of the assembled operator: dense leaves (exact) + low-rank factors."""
+        return 8 * (self.dense_numbers + self.lowrank_numbers)
+
+    def work_bytes(self, n_rhs, subdomain_size):
+        """Bytes beside the operator: the kernel arguments (freed after assembly), the
+        preconditioner on subdomains of <= subdomain_size panels, and the solver's vectors."""
+        kargs = sum(a.nbytes for a in self.kargs if isinstance(a, np.ndarray))
+        sizes = np.diff(self.tree.partition(subdomain_size))
+        schwarz = 8 * (np.sum(sizes * sizes) + 2 * len(sizes) ** 2)
+        vectors = 8 * self.n * n_rhs * (numba.get_num_threads() + 10)
+        return int(kargs + schwarz + vectors)
+
+
+class HMatrixOperator(LinearOperator):
+    """The hierarchical-matrix approximation of P (V m^2 per C/m^2) as a LinearOperator.
+
+    Built by assemble() or from the plain arrays of arrays() (the cache). Products take and
+    return vectors in the caller's panel order; inside, panels are in cluster order."""
+
+    ARRAY_NAMES = ("perm", "tree_start", "tree_end", "tree_child", "tree_lo", "tree_hi",
+                   "dense_blocks", "dense_offsets", "dense_data",
+                   "lr_blocks", "lr_offsets", "lr_ranks", "lr_data")
+
+    def __init__(self, arrays, eps_r=1.0):
+        for name in self.ARRAY_NAMES:
+            setattr(self, name, arrays[name])
+        self.tree = ClusterTree(self.perm, self.tree_start, self.tree_end, self.tree_child,
+                                self.tree_lo, self.tree_hi)
+        self.scale = 1.0 / (4.0 * math.pi * EPS0 * eps_r)
+        n = len(self.perm)
+        threads = numba.get_num_threads()
+        self.dense_groups = _groups(self.dense_blocks[:, 1] * self.dense_blocks[:, 3], threads)
+        self.lr_groups = _groups(self.lr_ranks * (self.lr_blocks[:, 1] + self.lr_blocks[:, 3]),
+                                 threads)
+        self.max_rank = int(self.lr_ranks.max(initial=0))
+        super().__init__(np.float64, (n, n))
+
+    @classmethod
+    def assemble(cls, plan, eps_r=1.0, memory_limit=None):
+        """Compress the admissible blocks, fill the others. memory_limit (bytes) for the
+        operator is checked as the low-rank factors come in, so a run that outgrows its
+        estimate stops cleanly instead of being killed."""
+        budget = None if memory_limit is None else memory_limit - 8 * plan.dense_numbers
+        ranks, pieces = _compress(plan.far, plan.compression, plan.kargs, budget)
+        low = ranks > 0
+        lr_blocks = plan.far[low]
+        lr_ranks = ranks[low]
+        lr_data = _concatenate(pieces)
+        # blocks that did not compress below the break-even rank join the dense leaves
+        dense_blocks = np.concatenate((plan.near, plan.far[ranks < 0]))
+        dense_sizes = dense_blocks[:, 1] * dense_blocks[:, 3]
+        need = 8 * (lr_data.size + dense_sizes.sum())
+        if memory_limit is not None and need > memory_limit:
+            raise ResourceError(f"the compressed operator needs {need / 2**30:.1f} GiB, more "
+                                f"than the {memory_limit / 2**30:.1f} GiB allowed")
+        dense_offsets = np.concatenate(([0], np.cumsum(dense_sizes))).astype(np.int64)
+        dense_data = np.empty(dense_offsets[-1])
+        hkernels.fill_dense_blocks(dense_blocks, dense_offsets, dense_data, plan.kargs)
+        lr_offsets = np.concatenate(
+            ([0], np.cumsum(lr_ranks * (lr_blocks[:, 1] + lr_blocks[:, 3])))).astype(np.int64)
+        t = plan.tree
+        return cls(dict(perm=t.perm, tree_start=t.start, tree_end=t.end, tree_child=t.child,
+                        tree_lo=t.lo, tree_hi=t.hi, dense_blocks=dense_blocks,
+                        dense_offsets=dense_offsets, dense_data=dense_data, lr_blocks=lr_blocks,
+                        lr_offsets=lr_offsets, lr_ranks=lr_ranks, lr_data=lr_data), eps_r)
+
+    def arrays(self):
+        """The operator as plain arrays (integrals in m^3, before the 1/(4 pi eps) factor)."""
+        return {name: getattr(self, name) for name in self.ARRAY_NAMES}
+
+    @property
+    def nbytes(self):
+        return self.dense_data.nbytes + self.lr_data.nbytes
+
+    @property
+    def compression_ratio(self):
+        """Stored numbers over the n^2 of the dense matrix."""
+        return (self.dense_data.size + self.lr_data.size) / float(self.shape[0]) ** 2
+
+    def _product(self, x):
+        xp = np.ascontiguousarray(x[self.perm])
+        parts = np.empty((len(self.dense_groups) - 1,) + xp.shape)
+        hkernels.hmatrix_product(xp, parts, self.dense_blocks, self.dense_offsets,
+                                 self.dense_data, self.lr_blocks, self.lr_offsets, self.lr_ranks,
+                                 self.lr_data, self.dense_groups, self.lr_groups, self.max_rank)
+        y = np.empty_like(xp)
+        y[self.perm] = parts.sum(axis=0)
+        return self.scale * y
+
+    def _matvec(self, x):
+        return self._product(np.reshape(x, (-1, 1)))[:, 0]
+
+    def _matmat(self, x):
+        return self._product(np.asarray(x, np.float64))
+
+    def _adjoint(self):
+        return self
+
+    def diagonal(self):
+        """The diagonal of P, in the caller's panel order."""
+        d = np.empty(self.shape[0])
+        for (r0, m, c0, _), off in zip(self.dense_blocks, self.dense_offsets):
+            if r0 == c0:
+                d[self.perm[r0:r0 + m]] = self.dense_data[off:off + m * m:m + 1]
+        return self.scale * d
+
+    def schwarz_parts(self, max_size):
+        """Pieces of a two-level additive Schwarz preconditioner on clusters of <= max_size.
+
+        Returns (perm, bounds, inverse_offsets, inverses, coarse) of the unscaled integrals
+        (P / scale): subdomain d is panels perm[bounds[d]:bounds[d+1]]; its principal block's
+        inverse (row-major) is at inverses[inverse_offsets[d]:]; coarse is R P R^T for the
+        subdomain indicators R."""
+        bounds = self.tree.partition(max_size)
+        sizes = np.diff(bounds)
+        domain_of = np.repeat(np.arange(len(sizes)), sizes)
+
+        def inside(blocks):
+            # blocks whose rows and columns lie in one subdomain, grouped by it
+            d = domain_of[blocks[:, 0]]
+            same = ((d == domain_of[blocks[:, 0] + blocks[:, 1] - 1])
+                    & (d == domain_of[blocks[:, 2]])
+                    & (d == domain_of[blocks[:, 2] + blocks[:, 3] - 1]))
+            idx = np.flatnonzero(same)
+            idx = idx[np.argsort(d[idx], kind="stable")]
+            ptr = np.searchsorted(d[idx], np.arange(len(sizes) + 1))
+            return ptr.astype(np.int64), idx.astype(np.int64)
+
+        dense_ptr, dense_idx = inside(self.dense_blocks)
+        lr_ptr, lr_idx = inside(self.lr_blocks)
+        inv_offsets = np.concatenate(([0], np.cumsum(sizes * sizes))).astype(np.int64)
+        inverses = np.empty(inv_offsets[-1])
+        with threadpool_limits(limits=1, user_api="blas"):     # as in _compress
+            hkernels.subdomain_inverses(bounds, dense_ptr, dense_idx, self.dense_blocks,
+                                        self.dense_offsets, self.dense_data, lr_ptr, lr_idx,
+                                        self.lr_blocks, self.lr_offsets, self.lr_ranks,
+                                        self.lr_data, inv_offsets, inverses)
+        coarse = hkernels.coarse_matrix(domain_of, len(sizes), self.dense_blocks,
+                                        self.dense_offsets, self.dense_data, self.lr_blocks,
+                                        self.lr_offsets, self.lr_ranks, self.lr_data)
+        return self.perm, bounds, inv_offsets, inverses, coarse
