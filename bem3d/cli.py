@@ -2,6 +2,7 @@
 
 import argparse
 import json
+import math
 import sys
 import time
 from pathlib import Path
@@ -32,8 +33,23 @@ def _add_model_options(p):
                         "repeatable")
 
 
+def _add_run_guards(p):
+    p.add_argument("--force", action="store_true",
+                   help="replace the results of an earlier run in the output folder")
+    p.add_argument("--max-panels", type=int, metavar="N",
+                   help="refuse a model of more than N panels (conductors and dielectric "
+                        "bodies) before any assembly")
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse with bem3d's one-line error and exit code 2 (the usage stays in --help)."""
+
+    def error(self, message):
+        self.exit(EXIT_BAD_INPUT, f"bem3d: error: {self.prog}: {message}\n")
+
+
 def _parser():
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="bem3d", description="Capacitance matrices and field energy of conductors "
                                   "from surface meshes (boundary-element method).")
     parser.add_argument("--debug", action="store_true", help="show tracebacks")
@@ -41,6 +57,7 @@ def _parser():
 
     p = sub.add_parser("extract", help="compute the capacitance matrices")
     _add_model_options(p)
+    _add_run_guards(p)
     p.add_argument("--solver", choices=["auto", "direct", "cg"], default="auto",
                    help="direct (Cholesky), cg (conjugate gradients) or auto by size")
     p.add_argument("--tol", type=float, default=1e-7,
@@ -50,6 +67,7 @@ def _parser():
     p = sub.add_parser("field", help="capacitance plus potential, field and energy density "
                                      "on a grid, slices and points")
     _add_model_options(p)
+    _add_run_guards(p)
     p.add_argument("--box", type=float, nargs=6, metavar=("XMIN", "YMIN", "ZMIN", "XMAX", "YMAX", "ZMAX"),
                    help="field box in the mesh unit (default: the model's box plus a margin)")
     p.add_argument("--margin", type=float, default=0.5,
@@ -69,6 +87,8 @@ def _parser():
     p = sub.add_parser("demo", help="run the shipped sensor-head demo end to end")
     p.add_argument("folder", nargs="?", type=Path, default=Path("bem3d_demo"),
                    help="where to write the demo mesh and results (default: bem3d_demo)")
+    p.add_argument("--force", action="store_true",
+                   help="replace the results of an earlier demo in the folder")
 
     p = sub.add_parser("check-mesh", help="report panels, conductors and problems of meshes")
     p.add_argument("inputs", nargs="+", metavar="INPUT", help="mesh files")
@@ -105,14 +125,60 @@ def _model_from_args(args):
     return model
 
 
-def _run_extract(model, solver="auto", tol=1e-7, quiet=False):
-    from .export import CAUTION, write_outputs
-    from .pipeline import extract
+def _inputs(model, *extra):
+    """Every file a run reads: meshes, dielectric bodies, the model file, extra files."""
+    files = [*model.meshes, *(path for path, _ in model.dielectrics), *extra]
+    return files + ([Path(model.source)] if Path(model.source).is_file() else [])
 
+
+def _count_panels(model, max_panels, quiet):
+    """Panels of the model's conductors and dielectric bodies, refused above max_panels before
+    anything is assembled; None when neither the limit nor a time estimate needs the count."""
+    from .meshio_io import read_conductors
+    from .safety import check_panel_count
+
+    if max_panels is None and quiet:
+        return None
+    if max_panels is not None and max_panels < 1:
+        raise ModelError(f"--max-panels must be at least 1, got {max_panels}")
+    # a light read (no geometry checks): the solve reads and checks the meshes itself
+    groups = [model.meshes] + [[path] for path, _ in model.dielectrics]
+    n = sum(len(read_conductors(paths, units=model.length_unit, check=False)[0])
+            for paths in groups)
+    check_panel_count(n, max_panels, ", ".join(str(p) for group in groups for p in group))
+    return n
+
+
+def _announce(n_panels, solver, quiet, n_points=0, excitations=1):
+    """Print the time estimate of a dense run expected to be long, before it starts."""
+    from .pipeline import choose_backend
+    from .resources import available_memory
+    from .safety import describe_estimate, estimate_seconds
+
+    if quiet or n_panels is None:
+        return
+    backend, solver = choose_backend(n_panels, "auto", solver, available_memory())
+    if backend != "dense":
+        return
+    line = describe_estimate(estimate_seconds(n_panels, solver, n_points, excitations))
+    if line:
+        print(line, file=sys.stderr, flush=True)
+
+
+def _run_extract(model, solver="auto", tol=1e-7, quiet=False, force=False, max_panels=None):
+    from .export import CAUTION, output_names, write_outputs
+    from .pipeline import extract
+    from .safety import check_output_folder, staged_outputs
+
+    inputs = _inputs(model)
+    check_output_folder(model.output_folder, inputs, output_names(model), force)
     start = time.perf_counter()
+    _announce(_count_panels(model, max_panels, quiet), solver, quiet)
     panels, result, warnings = extract(model, solver=solver, tol=tol, progress=not quiet)
     result.timings_s["total"] = time.perf_counter() - start
-    files = write_outputs(model.output_folder, panels, result, model, warnings)
+    with staged_outputs(model.output_folder, inputs, force) as stage:
+        files = write_outputs(stage, panels, result, model, warnings)
+    files = [model.output_folder / f.name for f in files]
     if not quiet:
         for w in warnings:
             print(f"warning: {w}", file=sys.stderr)
@@ -150,21 +216,35 @@ def _field_request(args, model):
                         unit_fields=args.unit_fields, png=args.png)
 
 
-def _run_field(model, request, quiet=False):
+def _run_field(model, request, quiet=False, force=False, max_panels=None):
+    from dataclasses import replace
+
+    from .export import output_names
     from .field_map import AIR_BREAKDOWN_V_PER_M, FIELD_CAUTION, map_fields
     from .meshio_io import read_conductors
     from .pipeline import read_dielectrics, solve_panels
+    from .safety import check_output_folder, staged_outputs
     from .units import format_quantity
 
+    inputs = _inputs(model, *([request.point_file] if request.point_file else []))
+    check_output_folder(model.output_folder, inputs, output_names(model), force)
     start = time.perf_counter()
+    n_panels = _count_panels(model, max_panels, quiet)
     panels, warnings = read_conductors(model.meshes, units=model.length_unit)
     plan = request.plan(panels, model.ground_z_m)    # a bad request fails here, before the solve
+    grid, slice_grids, listed = plan
+    n_points = (math.prod(grid.shape) + sum(math.prod(g.shape) for _, _, g in slice_grids)
+                + (0 if listed is None else len(listed)))
+    _announce(n_panels, "auto", quiet, n_points,
+              1 + (panels.n_conductors if request.unit_fields else 0))
     result = solve_panels(panels, model.volts, model.relative_permittivity, progress=not quiet,
                           ground_z=model.ground_z_m, floating=model.floating,
                           dielectrics=read_dielectrics(model))
     result.timings_s["total"] = time.perf_counter() - start      # to the capacitance
-    record, files = map_fields(panels, result, model, request, plan, warnings,
-                               progress=not quiet)
+    with staged_outputs(model.output_folder, inputs, force) as stage:
+        record, files = map_fields(panels, result, replace(model, output_folder=stage), request,
+                                   plan, warnings, progress=not quiet)
+    files = [model.output_folder / f.name for f in files]
     if quiet:
         return files
     for w in warnings + record.get("picture_problems", []):
@@ -218,6 +298,11 @@ def _check_mesh(args):
             if p:
                 print(f"{key.replace('_', ' ')}: area {p['area_m2']:.3g} m^2, "
                       f"edge {format_quantity(p['edge_m'], 'm')}")
+        for key, label in (("aspect_ratio_max", "largest panel aspect ratio (longest edge / "
+                                                "height)"),
+                           ("neighbour_size_ratio_max", "largest size ratio of neighbours")):
+            if report[key] is not None:
+                print(f"{label}: {report[key]:.3g}")
         print("problems: " + ("none" if not report["problems"] else ""))
         for problem in report["problems"]:
             print(f"  {problem}")
@@ -226,19 +311,23 @@ def _check_mesh(args):
 
 def _demo(args):
     from . import demo
+    from .export import output_names
     from .model import Model
+    from .safety import check_output_folder
 
     folder = args.folder
     mesh = folder / "sensor_head.msh"
-    demo.write_demo_mesh(mesh)
     model = Model(meshes=[mesh], length_unit=demo.LENGTH_UNIT, volts=dict(demo.VOLTS),
                   output_folder=folder, spice_name="sensor_head")
+    check_output_folder(folder, [], output_names(model), args.force)
+    demo.write_demo_mesh(mesh)
     print(f"demo: capacitive sensor head (two sense pads, drive pad, guard ring, lid); "
           f"drive at {demo.VOLTS['drive']:g} V, others at 0 V")
     from .field_map import FieldRequest
 
     # the board face z = 0 carries the pads: slice just above it, between grid planes
-    _run_field(model, FieldRequest(slices=[(2, demo.SLICE_Z_MM * 1e-3)], png=True))
+    _run_field(model, FieldRequest(slices=[(2, demo.SLICE_Z_MM * 1e-3)], png=True),
+               force=args.force)
     print(f"demo files are in {folder.resolve()}")
     return 0
 
@@ -248,11 +337,12 @@ def main(argv=None):
     try:
         if args.command == "extract":
             _run_extract(_model_from_args(args), solver=args.solver, tol=args.tol,
-                         quiet=args.quiet)
+                         quiet=args.quiet, force=args.force, max_panels=args.max_panels)
             return 0
         if args.command == "field":
             model = _model_from_args(args)
-            _run_field(model, _field_request(args, model), quiet=args.quiet)
+            _run_field(model, _field_request(args, model), quiet=args.quiet, force=args.force,
+                       max_panels=args.max_panels)
             return 0
         if args.command in ("sweep", "converge"):
             from . import converge, sweep

@@ -167,13 +167,23 @@ def write_point_table(points, columns, target):
     _write_text(target, "\n".join(lines) + "\n")
 
 
+def output_names(model):
+    """Names of the files write_outputs writes for the model, in its order."""
+    return ["result.json", "capacitance.csv", f"{spice_node(model.spice_name)}.cir",
+            "surface.vtp"]
+
+
 def write_outputs(folder, panels, result, model, warnings=(), extra=None, extra_cells=None):
     """Write result.json, capacitance.csv, <spice_name>.cir and surface.vtp; return their paths.
 
-    extra: more keys for result.json; extra_cells: more cell arrays for surface.vtp."""
+    Nothing is written if a capacitance, charge, energy or solver figure is NaN or infinite
+    (Bem3dError). extra: more keys for result.json; extra_cells: more cell arrays for
+    surface.vtp."""
+    from .safety import require_finite
+
+    require_finite(result_record(result), ", ".join(str(m) for m in model.meshes))
     folder = Path(folder)
-    files = [folder / "result.json", folder / "capacitance.csv",
-             folder / f"{spice_node(model.spice_name)}.cir", folder / "surface.vtp"]
+    files = [folder / name for name in output_names(model)]
     record = {"length_unit_of_meshes": model.length_unit,
               "meshes": [str(m) for m in model.meshes], "warnings": list(warnings)}
     record.update(extra or {})

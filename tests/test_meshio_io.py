@@ -60,10 +60,11 @@ def test_component_order_follows_geometry_not_cell_order(tmp_path):
     points, tris = two_tets(shift=(-5.0, 0.0, 0.0))
     path = write(tmp_path / "pair.stl", points, [("triangle", tris)])
     panels, _ = read_conductors(path)
-    # The moved copy has the lowest corner (x = -5), so it is c1 although its cells come last.
+    # The moved copy has the lowest corner (x = -5), so it is c1 although its cells come last;
+    # panels are listed conductor by conductor.
     assert panels.names == ("c1", "c2")
     assert np.all(panels.centroids[panels.owner == 0][:, 0] < -3)
-    assert np.all(panels.owner[:4] == 1)
+    assert np.all(np.diff(panels.owner) >= 0)
 
 
 def test_single_conductor_is_named_by_the_file_stem(tmp_path):
@@ -110,7 +111,7 @@ def test_integer_cell_tags(tmp_path, ext, key):
                  cell_data={key: [np.array([7] * 4 + [5] * 4)]})
     panels, _ = read_conductors(path)
     assert panels.names == ("tag5", "tag7")
-    assert np.all(panels.owner == [1] * 4 + [0] * 4)
+    assert np.all(panels.centroids[panels.owner == 0][:, 0] > 2)   # tag 5: the moved copy
 
 
 def test_tags_split_touching_parts_that_components_cannot(tmp_path):
@@ -310,10 +311,14 @@ def plates(gap):
 
 
 def test_check_geometry_gap_thresholds():
-    # Panel radius here is sqrt(5)/3 ~ 0.75 m (centroid to far corner of a half unit square).
-    assert check_geometry(plates(0.5), "cap.msh") == []
-    close = check_geometry(plates(1e-3), "cap.msh")
-    assert len(close) == 1 and "come within 0.001 m" in close[0]
+    # Panel size (longest edge) here is sqrt(2) m, the diagonal of a half unit square: a gap
+    # below it is under-resolved (common practice, no source), one above it is not.
+    assert check_geometry(plates(1.5), "cap.msh") == []
+    close = check_geometry(plates(0.5), "cap.msh")
+    assert len(close) == 1 and "come within 0.5 m" in close[0]
+    assert "panel size there (1.41 m" in close[0] and "about 3x finer" in close[0]  # sqrt2/0.5
+    assert "at most 0.5 m" in close[0]
+    assert "come within 0.001 m" in check_geometry(plates(1e-3), "cap.msh")[0]
     with pytest.raises(MeshError, match="cap.msh: conductors 'lower' and 'upper' touch"):
         check_geometry(plates(1e-9), "cap.msh")
 
@@ -371,3 +376,201 @@ def test_mesh_summary_lists_problems_without_raising():
     summary = mesh_summary(plates(0.0), "cap.msh")
     assert summary["conductors"][0]["boundary_edges"] == 4  # open unit square: its 4 sides
     assert len(summary["problems"]) == 1 and "touch" in summary["problems"][0]
+
+
+# --- orientation ---------------------------------------------------------------------------------
+
+def outward_share(panels, centre):
+    """Share of panels whose normal points away from centre (outward for a convex body)."""
+    return float(np.mean(np.einsum("ij,ij->i", panels.normals, panels.centroids - centre) > 0))
+
+
+@pytest.mark.parametrize("flip", [[0], [1, 3], [0, 1, 2, 3]])
+def test_closed_surfaces_are_turned_to_face_outward(tmp_path, flip):
+    tris = TET_TRIS.copy()
+    tris[flip] = tris[flip, ::-1]
+    path = write(tmp_path / "tet.obj", TET_POINTS, [("triangle", tris)])
+    panels, found_warnings = read_conductors(path)
+    # the tetrahedron is convex: outward normals point away from its centroid (geometry)
+    assert outward_share(panels, TET_POINTS.mean(axis=0)) == 1.0
+    assert found_warnings == [f"{path}: conductor 'tet': {len(flip)} of 4 panels reversed so "
+                              "that they face out of the conductor and agree with their "
+                              "neighbours"]
+
+
+def test_a_cavity_wall_faces_into_the_cavity(tmp_path):
+    # A thick spherical shell: outer surface r = 2, cavity wall r = 1, both written facing away
+    # from the centre. Out of the conductor's material means away from the centre outside and
+    # towards it on the cavity wall.
+    from bem3d import shapes
+
+    outer, inner = shapes.octahedral_sphere(2.0, 3), shapes.octahedral_sphere(1.0, 3)
+    points, tris = shapes.merge(outer, inner)
+    tags = [np.ones(len(tris), int)]
+    path = write(tmp_path / "shell.msh", points, [("triangle", tris)], "gmsh22",
+                 cell_data={"gmsh:physical": tags, "gmsh:geometrical": tags},
+                 field_data={"shell": np.array([1, 2])})
+    panels, found_warnings = read_conductors(path)
+    r = np.linalg.norm(panels.centroids, axis=1)
+    away = np.einsum("ij,ij->i", panels.normals, panels.centroids) > 0
+    assert np.all(away[r > 1.5]) and not np.any(away[r < 1.5])
+    assert "72 of 144 panels reversed" in found_warnings[0]           # the 72 cavity panels
+
+
+def test_an_open_sheet_keeps_the_orientation_most_panels_had(tmp_path):
+    # Eight panels of a unit square in z = 0; three of them are written reversed.
+    from bem3d import shapes
+
+    points, tris = shapes.rectangle(1.0, 1.0, 2, 2)
+    tris = np.asarray(tris).copy()
+    tris[[1, 4, 6]] = tris[[1, 4, 6], ::-1]
+    path = write(tmp_path / "sheet.ply", np.asarray(points), [("triangle", tris)])
+    panels, found_warnings = read_conductors(path)
+    unflipped = Panels(np.asarray(points)[np.asarray(shapes.rectangle(1.0, 1.0, 2, 2)[1])],
+                       np.zeros(8, int), ("sheet",))
+    # all face the way the five unflipped ones did
+    np.testing.assert_allclose(panels.normals, unflipped.normals)
+    assert "3 of 8 panels reversed" in found_warnings[0]
+
+
+def test_a_surface_that_cannot_be_oriented_is_left_as_read(tmp_path):
+    # A Moebius strip of 10 quads (20 panels) has one side only (topology).
+    u = np.linspace(0, 2 * np.pi, 11)[:-1]
+    ring = lambda w: np.column_stack([(2 + w * np.cos(u / 2)) * np.cos(u),
+                                      (2 + w * np.cos(u / 2)) * np.sin(u), w * np.sin(u / 2)])
+    points = np.vstack([ring(-0.5), ring(0.5)])
+    quads = [[k, (k + 1) % 10, 10 + (k + 1) % 10, 10 + k] for k in range(9)] + [[9, 10, 0, 19]]
+    path = write(tmp_path / "strip.vtk", points, [("quad", np.array(quads))])
+    panels, found_warnings = read_conductors(path)
+    assert len(panels) == 20
+    assert any("cannot be oriented consistently" in w for w in found_warnings)
+    assert not any("reversed" in w for w in found_warnings)
+
+
+def test_corner_and_cell_order_do_not_change_the_panels(tmp_path):
+    # The same surfaces listed from other corners and in another order are the same input:
+    # the panels bem3d builds must be identical, bit for bit (the quadrature depends on order).
+    points, tris = two_tets()
+    rng = np.random.default_rng(3)
+    shuffled = np.roll(tris, 1, axis=1)[rng.permutation(len(tris))]
+    a, _ = read_conductors(write(tmp_path / "a.vtu", points, [("triangle", tris)]))
+    b, _ = read_conductors(write(tmp_path / "b.vtu", points, [("triangle", shuffled)]))
+    np.testing.assert_array_equal(a.vertices, b.vertices)
+    np.testing.assert_array_equal(a.owner, b.owner)
+
+
+# --- what the content says, and what a header promises --------------------------------------
+
+def test_content_decides_the_format_not_the_extension(tmp_path):
+    right = write(tmp_path / "tet.obj", TET_POINTS, [("triangle", TET_TRIS)])
+    wrong = tmp_path / "tet.stl"
+    wrong.write_bytes(right.read_bytes())
+    a, _ = read_conductors(right)
+    b, found_warnings = read_conductors(wrong)
+    np.testing.assert_array_equal(a.vertices, b.vertices)
+    assert found_warnings == [f"{wrong}: the content is OBJ although its name ends in '.stl'; "
+                              "read it as OBJ"]
+
+
+@pytest.mark.parametrize("text, words", [
+    (b"", "the file is empty"),
+    (b"OFF\n# cut here\n", "no vertex and face counts"),
+    (b"ply\nformat ascii 1.0\nelement vertex 3\n", "no end_header"),
+    (b"OFF\n4000000000 4 0\n0 0 0\n", "promises 4,000,000,000 vertices but the file holds only"),
+    (b"solid x\nfacet normal 0 0 1\n outer loop\n  vertex 0 0 0\n",
+     "does not end with 'endsolid'"),
+    (b"v 0 0 0\nv 1 0 0\nv 0 1 0\nf 1 2 3", "ends in the middle of a line"),
+    (b"$MeshFormat\n2.2 0 8\n$EndMeshFormat\n$Nodes\n3\n1 0 0 0\n2 1 0 0\n3 0 1 0\n$EndNodes\n"
+     b"$Elements\n1\n1 2 2 0 1 1 2 0\n$EndElements\n", "refers to node 0, which does not exist"),
+    (b"$MeshFormat\n4.1 0 8\n$EndMeshFormat\n$Nodes\n1 9 1 3\n2 1 0 3\n1\n2\n3\n0 0 0\n1 0 0\n"
+     b"0 1 0\n$EndNodes\n$Elements\n1 1 1 1\n2 1 2 1\n1 1 2 3\n$EndElements\n",
+     "promises 9 nodes but its blocks hold 3"),
+])
+def test_broken_files_are_refused_before_parsing(tmp_path, monkeypatch, text, words):
+    # meshio's OFF and PLY readers loop forever on the first two, and would read the others
+    # as some other mesh or allocate what the header says: the reader must never be called.
+    path = tmp_path / "broken.mesh.txt"
+    path.write_bytes(text)
+    monkeypatch.setattr(meshio, "read", lambda *a, **k: pytest.fail("meshio was called"))
+    with pytest.raises(MeshError, match=words) as error:
+        read_conductors(path)
+    assert_one_line(error, path)
+
+
+@pytest.mark.parametrize("scale, shift, words", [
+    (1e13, 0.0, "coordinates reach 1e\\+13 m, beyond the 1e\\+12 m"),
+    (1e-13, 0.0, "only 1.73e-13 m across, below the 1e-12 m"),
+    (1.0, 1e11, "too small for the precision of their coordinates"),
+])
+def test_magnitudes_no_model_can_have_are_refused(tmp_path, scale, shift, words):
+    # The tetrahedron's box diagonal is sqrt(3) = 1.73 times its edge (geometry); its edges of
+    # 1 m at 1e11 m from the origin carry rounding of 1e11 * 1.1e-16 m, 1e-5 of an edge.
+    path = write(tmp_path / "tet.vtu", TET_POINTS * scale + shift, [("triangle", TET_TRIS)])
+    with pytest.raises(MeshError, match=words) as error:
+        read_conductors(path)
+    assert_one_line(error, path)
+
+
+def test_subnormal_coordinates_read_like_zeros(tmp_path):
+    a = write(tmp_path / "a.vtu", TET_POINTS, [("triangle", TET_TRIS)])
+    b = write(tmp_path / "b.vtu", np.where(TET_POINTS == 0, 5e-324, TET_POINTS),
+              [("triangle", TET_TRIS)])
+    np.testing.assert_allclose(read_conductors(a)[0].vertices, read_conductors(b)[0].vertices,
+                               rtol=0, atol=1e-300)
+
+
+# --- accuracy warnings -----------------------------------------------------------------------
+
+def test_thin_panels_are_reported_with_count_and_worst_location(tmp_path):
+    # A unit square cut into 50 strips of 1 x 0.02, each split in two: longest edge
+    # sqrt(1 + 0.02^2), height onto it 0.02 / that, so aspect (1 + 4e-4) / 0.02 = 50.02.
+    from bem3d import shapes
+
+    points, tris = shapes.rectangle(1.0, 1.0, 1, 50)
+    path = write(tmp_path / "strips.obj", np.asarray(points), [("triangle", np.asarray(tris))])
+    _, found_warnings = read_conductors(path)
+    thin = [w for w in found_warnings if "aspect ratio" in w]
+    assert len(thin) == 1 and "100 panel(s) with aspect ratio (longest edge / height) above 20" \
+        in thin[0] and "up to 50" in thin[0] and " at (" in thin[0]
+
+
+def test_abrupt_size_changes_are_reported(tmp_path):
+    # A long panel (longest edge sqrt(1 + 100) = 10.05) beside a small one (longest edge 1)
+    # across their shared edge: ratio 10.05; aspect ratios 10.1 and 2 stay below the limit.
+    points = np.array([[0, 0, 0], [1, 0, 0], [0, 10, 0], [0.5, -0.5, 0]], float)
+    tris = np.array([[0, 1, 2], [1, 0, 3]])
+    path = write(tmp_path / "jump.obj", points, [("triangle", tris)])
+    _, found_warnings = read_conductors(path)
+    assert len(found_warnings) == 1
+    assert "1 pair(s) of neighbouring panels differ in size by more than 3x, up to 10x" \
+        in found_warnings[0]
+
+
+def test_mesh_summary_gives_shape_figures():
+    # Corner tetrahedron: right faces have aspect (sqrt 2)^2 / (2 * 1/2) = 2, the equilateral
+    # face 2 / sqrt(3); every pair of neighbours has longest edges sqrt(2) (geometry).
+    panels = Panels(TET_POINTS[TET_TRIS], [0, 0, 0, 0], ("tet",))
+    summary = mesh_summary(panels, "tet.stl")
+    assert summary["aspect_ratio_max"] == pytest.approx(2.0)
+    assert summary["neighbour_size_ratio_max"] == pytest.approx(1.0)
+
+
+def test_check_mesh_shows_every_accuracy_warning(tmp_path, capsys):
+    # Two strip-meshed plates 0.01 m apart (panels 1 m long, so the gap is far below their
+    # size) in one file, grouped by their tags: check-mesh lists both kinds of concern and the
+    # shape figures, and exits 0.
+    from bem3d import shapes
+    from bem3d.cli import main
+
+    points, tris = shapes.rectangle(1.0, 1.0, 1, 50)
+    points = np.asarray(points)
+    both = np.vstack([points, points + [0, 0, 0.01]])
+    cells = np.vstack([tris, np.asarray(tris) + len(points)])
+    tags = np.r_[np.ones(len(tris), int), 2 * np.ones(len(tris), int)]
+    path = write(tmp_path / "plates.vtu", both, [("triangle", cells)],
+                 cell_data={"conductor": [tags]})
+    assert main(["check-mesh", str(path)]) == 0
+    out = capsys.readouterr().out
+    assert "conductors 'tag1' and 'tag2' come within 0.01 m" in out and "about 101x finer" in out
+    assert "aspect ratio (longest edge / height) above 20" in out
+    assert "largest panel aspect ratio (longest edge / height): 50" in out
