@@ -12,6 +12,10 @@ on either side, gives the second-kind equation
 collocated at the panel centroid (Rao, Sarkar & Harrington 1984, IEEE Trans. MTT-32(3);
 the same jump relation as in Kellogg 1929). The free charge on a closed conductor is
 eps_r (outside) times its total charge; capacitances are free charges per volt.
+
+Above an infinite grounded plane every charge, free or bound, has its negative mirror image
+(method of images), so both kinds of row take the image contribution: the potential of the
+mirrored panels with opposite sign, and their normal field at the interface test points.
 """
 
 import math
@@ -26,7 +30,7 @@ from .geometry import Panels
 from .kernels import assemble_normal_field
 from .meshio_io import closed_conductors
 from .operators import PairRules
-from .operators.dense import DenseOperator
+from .operators.dense import DenseOperator, dense_bytes
 from .quadrature import graded_rule, map_points, triangle_rule
 from .results import CapacitanceResult, FieldSources, potential_vector
 
@@ -79,20 +83,21 @@ def medium_at(points, bodies, background):
     return eps
 
 
+def all_body_panels(bodies):
+    """The panels of every body in one Panels, owner = body index, names = body names."""
+    return Panels(np.concatenate([b.panels.vertices for b in bodies]),
+                  np.concatenate([np.full(len(b.panels), k) for k, b in enumerate(bodies)]),
+                  tuple(b.name for b in bodies))
+
+
 def interfaces(bodies, background, size):
     """Interface panels and their lambda = (eps_in - eps_out)/(eps_in + eps_out).
 
     A face shared by two touching bodies appears in both meshes with opposite normals: it is
     kept once, with the two bodies' permittivities on its sides."""
-    verts, lam_in, owners = [], [], []
-    for b, body in enumerate(bodies):
-        verts.append(body.panels.vertices)
-        lam_in.append(np.full(len(body.panels), body.eps_r))
-        owners.append(np.full(len(body.panels), b))
-    verts = np.concatenate(verts)
-    eps_in = np.concatenate(lam_in)
-    owner = np.concatenate(owners)
-    all_panels = Panels(verts, owner, tuple(b.name for b in bodies))
+    all_panels = all_body_panels(bodies)
+    verts, owner = all_panels.vertices, all_panels.owner
+    eps_in = np.array([bodies[k].eps_r for k in owner], float)
     # duplicates: the same three corners (in any order) in two bodies
     key = np.round(np.sort(verts, axis=1).reshape(len(verts), 9) / (1e-9 * size)).astype(np.int64)
     _, first, inverse, counts = np.unique(key, axis=0, return_index=True, return_inverse=True,
@@ -142,12 +147,46 @@ def _uncovered(inter, lam, conductors, size):
     return Panels(inter.vertices[keep], inter.owner[keep], inter.names), lam[keep]
 
 
-def solve_with_dielectrics(conductors, bodies, background=1.0, volts=None, rules=PairRules()):
-    """Capacitance of `conductors` (Panels, m) among dielectric `bodies` in a background medium.
+def system_bytes(n_panels):
+    """Peak memory (bytes) of the dense dielectric solve for n_panels conductor and interface
+    panels: two n x n arrays, the system matrix and the copy LU factors (the image field of
+    the interface rows needs at most one more matrix's worth before that copy exists)."""
+    return 2 * dense_bytes(n_panels)
 
-    Returns a CapacitanceResult whose sigma is the free charge density (C/m^2) per volt on each
-    conductor panel; solver settings record the interface panel count."""
+
+@dataclass(frozen=True)
+class DielectricSystem:
+    """The geometry of the coupled system, known before any assembly: conductor panels,
+    interface panels with their lambda, the medium outside each conductor panel, the bodies,
+    the background and the grounded plane height (m) or None."""
+
+    conductors: Panels
+    interfaces: Panels
+    lam: np.ndarray
+    eps_out: np.ndarray
+    bodies: tuple
+    background: float
+    ground_z: float | None
+
+    @property
+    def n_panels(self):
+        return len(self.conductors) + len(self.interfaces)
+
+    @property
+    def nbytes(self):
+        return system_bytes(self.n_panels)
+
+
+def plan_dielectrics(conductors, bodies, background=1.0, ground_z=None):
+    """Check the bodies and find the interfaces: a DielectricSystem (no assembly yet).
+    ground_z: height (m) of an infinite grounded plane; every body must lie above it."""
     check_bodies(bodies)
+    if ground_z is not None:
+        low = all_body_panels(bodies).names_reaching(ground_z)
+        if low:
+            raise ModelError(f"--ground-plane z = {ground_z:g} m: dielectric body(ies) "
+                             f"{', '.join(low)} touch, cross or lie below the plane; all must "
+                             "lie above it")
     v = conductors.vertices.reshape(-1, 3)
     size = float(np.max(v.max(axis=0) - v.min(axis=0)))
     inter, lam = interfaces(bodies, background, size)
@@ -161,34 +200,67 @@ def solve_with_dielectrics(conductors, bodies, background=1.0, volts=None, rules
         name = conductors.names[conductors.owner[np.flatnonzero(mixed)[0]]]
         raise ModelError(f"conductor {name}: a zero-thickness sheet with different media on "
                          "its two faces is not supported; give it a thickness")
+    return DielectricSystem(conductors, inter, lam, eps_out, tuple(bodies), float(background),
+                            ground_z)
+
+
+def solve_with_dielectrics(conductors, bodies, background=1.0, volts=None, rules=PairRules(),
+                           ground_z=None):
+    """Capacitance of `conductors` (Panels, m) among dielectric `bodies` in a background medium,
+    above a grounded plane z = ground_z (m) if given.
+
+    Returns a CapacitanceResult whose sigma is the free charge density (C/m^2) per volt on each
+    conductor panel; solver settings record the interface panel count."""
+    return solve_system(plan_dielectrics(conductors, bodies, background, ground_z), volts, rules)
+
+
+def _interface_rows(out, system, sources):
+    """Fill out (ni, n): over each interface panel's test points, the weighted sum of
+    n_k . (field of a unit charge density on each source panel), less that of the source's
+    mirror image when there is a grounded plane."""
+    inter = system.interfaces
+    bary_near, w_near = triangle_rule(5)
+    bary_mid, w_mid = triangle_rule(2)
+    bary_test, w_test = graded_rule(TEST_POINTS)
+    test = map_points(inter.vertices, bary_test)
+
+    def field(target, src):
+        assemble_normal_field(target, test, w_test, inter.normals, src.vertices, src.normals,
+                              src.centroids, src.radii, src.areas,
+                              map_points(src.vertices, bary_mid), w_mid,
+                              map_points(src.vertices, bary_near), w_near, 2.0, 4.0, 12.0)
+
+    field(out, sources)
+    if system.ground_z is not None:
+        image = np.empty_like(out)          # within system_bytes: no LU copy exists yet
+        field(image, sources.mirrored(system.ground_z))
+        out -= image
+
+
+def solve_system(system, volts=None, rules=PairRules()):
+    """Assemble and solve a DielectricSystem by dense LU: a CapacitanceResult."""
+    conductors, inter, lam = system.conductors, system.interfaces, system.lam
     nc, ni = len(conductors), len(inter)
     both = Panels(np.concatenate([conductors.vertices, inter.vertices]),
                   np.concatenate([conductors.owner, conductors.n_conductors + inter.owner]),
                   conductors.names + inter.names)
-    matrix = np.empty((nc + ni, nc + ni))
-    # conductor rows: Galerkin potential of all charges in vacuum, (V m^2) per (C/m^2)
-    p = DenseOperator(both, eps_r=1.0, rules=rules).matrix
-    matrix[:nc] = p[:nc]
+    # conductor rows: Galerkin potential of all charges (and their images) in vacuum,
+    # (V m^2) per (C/m^2); the interface rows of this matrix are overwritten below
+    matrix = DenseOperator(both, eps_r=1.0, rules=rules, ground_z=system.ground_z).matrix
+    scale = np.mean(np.diag(matrix)[:nc] / conductors.areas)     # keeps the blocks comparable
     # interface rows, tested over each panel (Galerkin): A_k sigma_k - lambda_k/(2 pi)
     # sum_l <n_k . g_l>_k sigma_l, scaled like P. The test rule is the graded one because a
     # neighbour's field has logarithmic edges on panel k (a centroid-only test converges
     # only like h^0.8 here, measured on a sphere in a dielectric shell).
-    bary_near, w_near = triangle_rule(5)
-    bary_mid, w_mid = triangle_rule(2)
-    bary_test, w_test = graded_rule(TEST_POINTS)
-    k_rows = np.empty((ni, nc + ni))
-    assemble_normal_field(k_rows, map_points(inter.vertices, bary_test), w_test, inter.normals,
-                          both.vertices, both.normals, both.centroids, both.radii, both.areas,
-                          map_points(both.vertices, bary_mid), w_mid,
-                          map_points(both.vertices, bary_near), w_near, 2.0, 4.0, 12.0)
-    scale = np.mean(np.diag(p)[:nc] / conductors.areas)     # keeps the blocks comparable
-    rows = -(lam / (2 * math.pi))[:, None] * k_rows
+    rows = matrix[nc:]                      # a view: assembled in place
+    _interface_rows(rows, system, both)
+    rows *= -(lam / (2 * math.pi))[:, None]
     rows[np.arange(ni), nc + np.arange(ni)] += 1.0
-    matrix[nc:] = scale * inter.areas[:, None] * rows
+    rows *= (scale * inter.areas)[:, None]
     rhs = np.zeros((nc + ni, conductors.n_conductors))
     rhs[:nc] = conductors.excitation()
     total = scipy.linalg.lu_solve(scipy.linalg.lu_factor(matrix), rhs)
-    free = eps_out[:, None] * total[:nc]
+    free = system.eps_out[:, None] * total[:nc]
     maxwell = conductors.excitation().T @ free
     potentials = potential_vector(conductors.names, dict(volts or {}))
     residual = float(np.linalg.norm(matrix @ total - rhs) / np.linalg.norm(rhs))
@@ -197,6 +269,8 @@ def solve_with_dielectrics(conductors, bodies, background=1.0, volts=None, rules
         potentials=potentials, n_panels=nc,
         solver={"backend": "dense", "solver": "lu (dielectric interfaces)",
                 "interface_panels": ni, "relative_residual": residual,
-                "relative_permittivity": background, "pair_rules": rules.as_dict()},
+                "relative_permittivity": system.background, "pair_rules": rules.as_dict(),
+                "ground_plane_z_m": system.ground_z,
+                "memory_estimate_MiB": system.nbytes / 2**20},
         asymmetry=float(np.max(np.abs(maxwell - maxwell.T)) / np.max(np.abs(np.diag(maxwell)))),
-        sources=FieldSources(both, total, 1.0, tuple(bodies), float(background)))
+        sources=FieldSources(both, total, 1.0, system.bodies, system.background))

@@ -67,6 +67,11 @@ class Panels:
         v[..., 2] = 2.0 * z0 - v[..., 2]
         return Panels(v, self.owner, self.names)
 
+    def names_reaching(self, z0):
+        """Names of the conductors with a corner at or below the plane z = z0 (m)."""
+        return [n for k, n in enumerate(self.names)
+                if self.vertices[self.owner == k][..., 2].min() <= z0]
+
     def transformed(self, scale=1.0, rotation=None, shift=(0.0, 0.0, 0.0)):
         """A copy moved rigidly: x -> scale * R x + shift."""
         v = self.vertices * scale

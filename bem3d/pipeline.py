@@ -72,8 +72,7 @@ def choose_backend(n_panels, backend, solver, available):
 
 def check_ground_plane(panels, ground_z):
     """Every conductor must lie wholly above the grounded plane z = ground_z (m)."""
-    low = [n for k, n in enumerate(panels.names)
-           if panels.vertices[panels.owner == k][..., 2].min() <= ground_z]
+    low = panels.names_reaching(ground_z)
     if low:
         raise ModelError(f"--ground-plane z = {ground_z:g} m: conductor(s) {', '.join(low)} "
                          "touch, cross or lie below the plane; all must lie above it")
@@ -102,19 +101,21 @@ def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto"
     if ground_z is not None:
         check_ground_plane(panels, ground_z)
     if dielectrics:
-        if ground_z is not None:
-            raise ModelError("dielectric bodies together with a ground plane are not supported "
-                             "yet; mesh the ground as a conductor instead")
         if backend == "compressed":
             raise ModelError("dielectric bodies need the dense backend (--backend dense)")
-        from .dielectric import solve_with_dielectrics
+        from .dielectric import plan_dielectrics, solve_system
 
+        system = plan_dielectrics(panels, dielectrics, eps_r, ground_z)
+        have = available_memory()
+        _check_memory(f"{len(panels)} conductor and {len(system.interfaces)} interface panels",
+                      system.nbytes, "the dense dielectric system", have, "coarsen the meshes")
         _log(progress, f"solving {len(panels)} conductor panels with "
-                       f"{len(dielectrics)} dielectric bodies (dense LU) ...")
+                       f"{len(dielectrics)} dielectric bodies (dense LU): "
+                       f"{_gib(system.nbytes)} of {_gib(have)} available ...")
         t0 = time.perf_counter()
-        result = solve_with_dielectrics(panels, dielectrics, eps_r, volts, rules)
+        result = solve_system(system, volts, rules)
         result.timings_s.update({"assembly": 0.0, "solve": time.perf_counter() - t0})
-        result.solver.update({"ground_plane_z_m": None, "floating": list(floating),
+        result.solver.update({"floating": list(floating),
                               "dielectrics": {b.name: b.eps_r for b in dielectrics}})
         return reduce_floating(result, floating) if floating else result
     have = available_memory()
@@ -147,13 +148,17 @@ def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto"
     return reduce_floating(result, floating) if floating else result
 
 
+def _check_memory(what, need, purpose, have, advice):
+    """ResourceError (one line) when `need` bytes exceed MEMORY_FRACTION of `have`."""
+    if need > MEMORY_FRACTION * have:
+        raise ResourceError(f"{what} need {_gib(need)} for {purpose}, more than "
+                            f"{MEMORY_FRACTION:.0%} of the {_gib(have)} available; {advice}")
+
+
 def _solve_dense(panels, rhs, eps_r, rules, solver, tol, ground_z, have, progress):
     need = plan_memory(len(panels), solver)
-    if need > MEMORY_FRACTION * have:
-        raise ResourceError(
-            f"{len(panels)} panels need {_gib(need)} for the dense matrix, more than "
-            f"{MEMORY_FRACTION:.0%} of the {_gib(have)} available; use --backend compressed "
-            "or coarsen the mesh")
+    _check_memory(f"{len(panels)} panels", need, "the dense matrix", have,
+                  "use --backend compressed or coarsen the mesh")
     timings = {}
     _log(progress, f"assembling {len(panels)} panels, dense backend: {_gib(need)} of "
                    f"{_gib(have)} available ...")

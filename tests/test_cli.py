@@ -246,10 +246,13 @@ def test_ground_plane_floating_and_dielectric_options(tmp_path, capsys):
     code, stdout, _ = run(["extract", ball, shield, "--ground-plane", "0", "--floating", "shield",
                            "--dielectric", f"{shell}=3.5", "--volts", "ball=1", "--out", out],
                           capsys)
-    # a dielectric together with a ground plane is refused (not supported yet)
-    assert code == 2 and not out.exists()
+    # a dielectric together with a ground plane and a floating conductor
+    assert code == 0 and "floating conductor shield" in stdout
+    record = json.loads((out / "result.json").read_text())
+    assert record["solver"]["ground_plane_z_m"] == 0.0
+    assert list(record["solver"]["dielectrics"].values()) == [3.5]
     code, stdout, _ = run(["extract", ball, shield, "--ground-plane", "0", "--floating", "shield",
-                           "--volts", "ball=1", "--out", out], capsys)
+                           "--volts", "ball=1", "--out", out, "--force"], capsys)
     assert code == 0 and "floating conductor shield" in stdout
     record = json.loads((out / "result.json").read_text())
     assert record["conductors"] == ["ball"] and "shield" in record["floating_potentials_V"]
@@ -281,6 +284,7 @@ def test_ground_plane_floating_and_dielectric_options(tmp_path, capsys):
     (["--dielectric", "{d}/shell.stl"], "FILE=EPS_R"),
     (["--dielectric", "{d}/none.stl=2"], "none.stl"),
     (["--ground-plane", "3"], "below the plane"),
+    (["--ground-plane", "1.8", "--dielectric", "{d}/shell.stl=2"], "dielectric body"),
     (["--floating", "ghost"], "ghost"),
 ])
 def test_bad_environment_options_exit_2(tmp_path, capsys, extra, words):

@@ -230,10 +230,6 @@ def test_each_backend_refuses_before_assembling(monkeypatch, backend):
         solve_panels(panels, backend=backend, cache=False)
 
 
-@pytest.mark.xfail(strict=True, raises=pytest.fail.Exception,
-                   reason="dielectric.py: the dense system with dielectric bodies (conductor "
-                          "and interface panels, about three N^2 matrices) is assembled without "
-                          "a memory estimate")
 def test_dielectric_run_refuses_before_assembling(tmp_path, capsys, monkeypatch):
     ball = write_sphere(tmp_path / "ball.obj", level=2)
     points, tris = shapes.octahedral_sphere(2.0, 4)
