@@ -76,11 +76,6 @@ def fill_dense_blocks(blocks, offsets, data, kargs):
 
 #: Residual rows and columns sampled at random to confirm that ACA has converged.
 ACA_CHECKS = 2
-#: Blocks of at most this many entries are checked against all their entries after
-#: compression. Close to the quadrature's rule boundaries (kernels.panel_pair_integral) the
-#: entries jump by ~1e-4 relative along single rows or columns, which sampling can miss; such
-#: blocks are small (their clusters lie within a few rule radii of each other).
-VERIFY_NUMBERS = 16384
 
 
 @njit(cache=True)
@@ -279,7 +274,7 @@ def _within(r0, m, c0, n, uu, vv, r, eps, kargs):
 
 
 @njit(parallel=True, cache=True)
-def compress_blocks(blocks, slots, scratch, ranks, eps_aca, eps_svd, kargs):
+def compress_blocks(blocks, slots, scratch, ranks, eps_aca, eps_svd, verify, kargs):
     """ACA and SVD recompression of each block (k, 4); writes U then V of block b at
     scratch[slots[b]:] and its rank to ranks[b], or ranks[b] = -1 if no rank below the
     block's break-even rank rows*cols/(rows+cols) reached eps_aca (it is then stored dense).
@@ -293,8 +288,7 @@ def compress_blocks(blocks, slots, scratch, ranks, eps_aca, eps_svd, kargs):
             ranks[b] = -1 if not ok else 0
             continue
         uu, vv, r = _recompress(u, v, k, eps_svd)
-        if m * n <= VERIFY_NUMBERS and not _within(r0, m, c0, n, uu, vv, r, eps_aca + eps_svd,
-                                                   kargs):
+        if verify and not _within(r0, m, c0, n, uu, vv, r, eps_aca + eps_svd, kargs):
             ranks[b] = -1
             continue
         off = slots[b]
@@ -319,51 +313,59 @@ def gather_blocks(blocks, slots, ranks, scratch, offsets, out):
 
 @njit(cache=True, fastmath=True)
 def _dense_product(a, off, r0, m, c0, n, x, y):
-    # y[rows] += A x[cols], and for an off-diagonal block also y[cols] += A^T x[rows]
-    for c in range(x.shape[1]):
-        xs = x[c0:c0 + n, c]
-        ys = y[c0:c0 + n, c]
-        for i in range(m):
-            row = a[off + i * n:off + (i + 1) * n]
+    # y[:, rows] += A x[:, cols], and for an off-diagonal block also y[:, cols] += A^T x[:, rows];
+    # x, y are (columns, panels): each row of A is read from memory once for all columns
+    for i in range(m):
+        row = a[off + i * n:off + (i + 1) * n]
+        for c in range(x.shape[0]):
+            xs = x[c, c0:c0 + n]
             acc = 0.0
             for j in range(n):
                 acc += row[j] * xs[j]
-            y[r0 + i, c] += acc
+            y[c, r0 + i] += acc
             if r0 != c0:
-                xi = x[r0 + i, c]
+                ys = y[c, c0:c0 + n]
+                xi = x[c, r0 + i]
                 for j in range(n):
                     ys[j] += row[j] * xi
 
 
 @njit(cache=True, fastmath=True)
 def _lowrank_product(f, off, r, r0, m, c0, n, x, y, t):
-    # y[rows] += U (V^T x[cols]) and y[cols] += V (U^T x[rows]); t is (2, rank) scratch
+    # y[:, rows] += U (V^T x[:, cols]) and y[:, cols] += V (U^T x[:, rows]); t is
+    # (2, columns, rank) scratch; each factor row is read from memory once for all columns
+    nc = x.shape[0]
     u = f[off:off + m * r]
     v = f[off + m * r:off + (m + n) * r]
-    for c in range(x.shape[1]):
-        t[:, :r] = 0.0
-        for j in range(n):
-            xj = x[c0 + j, c]
+    t[:, :nc, :r] = 0.0
+    for j in range(n):
+        vj = v[j * r:(j + 1) * r]
+        for c in range(nc):
+            xj = x[c, c0 + j]
             for l in range(r):
-                t[0, l] += v[j * r + l] * xj
-        for i in range(m):
-            xi = x[r0 + i, c]
+                t[0, c, l] += vj[l] * xj
+    for i in range(m):
+        ui = u[i * r:(i + 1) * r]
+        for c in range(nc):
+            xi = x[c, r0 + i]
             acc = 0.0
             for l in range(r):
-                t[1, l] += u[i * r + l] * xi
-                acc += u[i * r + l] * t[0, l]
-            y[r0 + i, c] += acc
-        for j in range(n):
+                t[1, c, l] += ui[l] * xi
+                acc += ui[l] * t[0, c, l]
+            y[c, r0 + i] += acc
+    for j in range(n):
+        vj = v[j * r:(j + 1) * r]
+        for c in range(nc):
             acc = 0.0
             for l in range(r):
-                acc += v[j * r + l] * t[1, l]
-            y[c0 + j, c] += acc
+                acc += vj[l] * t[1, c, l]
+            y[c, c0 + j] += acc
 
 
 @njit(parallel=True, cache=True)
 def hmatrix_product(x, parts, dense_blocks, dense_offsets, dense_data, lr_blocks, lr_offsets,
                     lr_ranks, lr_data, dense_groups, lr_groups, max_rank):
-    """parts[g] = the share of thread group g of P x, for x (n, nr) in cluster numbering.
+    """parts[g] = the share of thread group g of (P x^T)^T, for x (nr, n) in cluster numbering.
 
     Group g takes dense blocks dense_groups[g]:dense_groups[g+1] and low-rank blocks
     lr_groups[g]:lr_groups[g+1]; the caller sums parts. Each stored block off the diagonal
@@ -371,7 +373,7 @@ def hmatrix_product(x, parts, dense_blocks, dense_offsets, dense_data, lr_blocks
     for g in prange(parts.shape[0]):
         y = parts[g]
         y[:] = 0.0
-        t = np.empty((2, max(max_rank, 1)))
+        t = np.empty((2, x.shape[0], max(max_rank, 1)))
         for b in range(dense_groups[g], dense_groups[g + 1]):
             _dense_product(dense_data, dense_offsets[b], dense_blocks[b, 0], dense_blocks[b, 1],
                            dense_blocks[b, 2], dense_blocks[b, 3], x, y)
