@@ -60,7 +60,10 @@ class OperatorCache:
                         or not set(names) <= set(data.files)):
                     raise ValueError("stale entry")
                 return {name: data[name] for name in names}
-        except (OSError, ValueError, KeyError, EOFError, zipfile.BadZipFile):
+        # zipfile raises RuntimeError ('encrypted' member) or NotImplementedError (other
+        # header flag bits) for a damaged member header
+        except (OSError, ValueError, KeyError, EOFError, RuntimeError, NotImplementedError,
+                zipfile.BadZipFile):
             path.unlink(missing_ok=True)
             return None
 

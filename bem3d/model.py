@@ -29,6 +29,10 @@ except ModuleNotFoundError:          # Python 3.10
 from .constants import LENGTH_UNITS
 from .errors import ModelError
 
+#: Accepted relative permittivities: no passive medium has a static value below vacuum's 1, and
+#: the largest reported for bulk ceramics are of order 1e5 (common practice, no source).
+PERMITTIVITY_RANGE = (1.0, 1e6)
+
 _TOP_KEYS = {"length_unit", "relative_permittivity", "meshes", "volts", "output",
              "ground_plane_z", "floating", "dielectric"}
 _OUTPUT_KEYS = {"folder", "spice_name"}
@@ -56,10 +60,8 @@ class Model:
         if self.length_unit not in LENGTH_UNITS:
             raise ModelError(f"{self.source}: unknown length unit '{self.length_unit}' "
                              f"(use one of {', '.join(LENGTH_UNITS)})")
-        eps = _number(self.relative_permittivity, "relative permittivity", self.source)
-        if not eps > 0:
-            raise ModelError(f"{self.source}: relative permittivity must be positive, got {eps:g}")
-        self.relative_permittivity = eps
+        self.relative_permittivity = _permittivity(self.relative_permittivity,
+                                                   "relative permittivity", self.source)
         self.volts = {str(k): _number(v, f"potential of '{k}'", self.source)
                       for k, v in self.volts.items()}
         if self.ground_plane_z is not None:
@@ -70,11 +72,8 @@ class Model:
         self.floating = list(dict.fromkeys(self.floating))
         checked = []
         for path, eps in self.dielectrics:
-            eps = _number(eps, f"relative permittivity of {path}", self.source)
-            if not eps > 0:
-                raise ModelError(f"{self.source}: relative permittivity of {path} must be "
-                                 f"positive, got {eps:g}")
-            checked.append((Path(path), eps))
+            checked.append((Path(path), _permittivity(eps, f"relative permittivity of {path}",
+                                                      self.source)))
         self.dielectrics = checked
 
     @property
@@ -88,9 +87,21 @@ class Model:
 def _number(value, what, source):
     if isinstance(value, bool) or not isinstance(value, (int, float)):
         raise ModelError(f"{source}: {what} must be a number, got {value!r}")
-    if not math.isfinite(value):
+    try:
+        number = float(value)
+    except OverflowError:                  # an integer beyond the float range
+        raise ModelError(f"{source}: {what} is too large ({len(str(value))} digits)") from None
+    if not math.isfinite(number):
         raise ModelError(f"{source}: {what} must be finite, got {value!r}")
-    return float(value)
+    return number
+
+
+def _permittivity(value, what, source):
+    eps = _number(value, what, source)
+    low, high = PERMITTIVITY_RANGE
+    if not low <= eps <= high:
+        raise ModelError(f"{source}: {what} must lie between {low:g} and {high:g}, got {eps:g}")
+    return eps
 
 
 def load_model(path):

@@ -170,9 +170,12 @@ def _solve_dense(panels, rhs, eps_r, rules, solver, tol, ground_z, have, progres
     if solver == "direct":
         report = solve_direct(operator.matrix, rhs)
     else:
-        pre = SchwarzPreconditioner.from_operator(operator, panels, SUBDOMAIN_SIZE)
-        report = solve_cg(operator, rhs, tol=tol, max_iterations=MAX_ITERATIONS,
-                          preconditioner=pre)
+        # one BLAS thread: threaded products and inverses split their sums by the thread
+        # count, which would move the result by ~1e-12 between machines
+        with threadpool_limits(limits=1, user_api="blas"):
+            pre = SchwarzPreconditioner.from_operator(operator, panels, SUBDOMAIN_SIZE)
+            report = solve_cg(operator, rhs, tol=tol, max_iterations=MAX_ITERATIONS,
+                              preconditioner=pre)
     timings["solve"] = time.perf_counter() - t0
     return report, {"memory_estimate_MiB": need / 2**20}, timings
 

@@ -280,7 +280,8 @@ def test_ground_plane_floating_and_dielectric_options(tmp_path, capsys):
 
 
 @pytest.mark.parametrize("extra, words", [
-    (["--dielectric", "{d}/shell.stl=-2"], "positive"),
+    (["--dielectric", "{d}/shell.stl=-2"], "must lie between 1"),
+    (["--dielectric", "{d}/shell.stl=0.5"], "must lie between 1"),
     (["--dielectric", "{d}/shell.stl"], "FILE=EPS_R"),
     (["--dielectric", "{d}/none.stl=2"], "none.stl"),
     (["--ground-plane", "3"], "below the plane"),

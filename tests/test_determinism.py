@@ -88,11 +88,7 @@ def test_repeated_runs_give_the_same_result(tmp_path):
     assert first["meshes"] == second["meshes"]
 
 
-@pytest.mark.parametrize("solver", ["direct", pytest.param("cg", marks=pytest.mark.xfail(
-    strict=True, reason="pipeline.py: the dense CG path lets the BLAS use all its threads, and "
-                        "the order of its sums moves the Maxwell matrix by 1.6e-12 of its "
-                        "largest entry between 1 and 2 BLAS threads (numba threads alone change "
-                        "nothing); the compressed path already pins BLAS to one thread"))])
+@pytest.mark.parametrize("solver", ["direct", "cg"])
 def test_thread_count_does_not_change_the_result(tmp_path, solver):
     # Separate processes, since the thread count is fixed when numba and the BLAS start.
     mesh = write_mesh(tmp_path / "pair.stl", two_spheres(8))            # 1,024 panels
