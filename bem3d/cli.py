@@ -41,6 +41,37 @@ def _add_run_guards(p):
                         "bodies) before any assembly")
 
 
+def _add_solver_options(p):
+    p.add_argument("--backend", choices=["auto", "dense", "compressed"], default="auto",
+                   help="dense matrix, compressed hierarchical matrix, or auto: compressed above "
+                        "6,000 panels or when dense would not fit in memory")
+    p.add_argument("--solver", choices=["auto", "direct", "cg"], default="auto",
+                   help="direct (Cholesky, dense only), cg (conjugate gradients) or auto by size")
+    p.add_argument("--tol", type=float, default=1e-7,
+                   help="CG relative residual (default 1e-7); mutual capacitances settle to "
+                        "about this relative accuracy, self capacitances to better")
+    p.add_argument("--block-tol", type=float, default=1e-4,
+                   help="compressed backend: relative accuracy of each low-rank block "
+                        "(default 1e-4)")
+    p.add_argument("--cache-dir", type=Path,
+                   help="where the compressed backend keeps assembled operators (default "
+                        "$BEM3D_CACHE_DIR, else ~/.cache/bem3d)")
+    p.add_argument("--no-cache", action="store_true",
+                   help="neither read nor write the operator cache")
+
+
+def _solver_options(args):
+    """The solve settings of extract and field, as keyword arguments of pipeline.solve_panels."""
+    from .operators.hmatrix import Compression
+
+    for name, value in (("--tol", args.tol), ("--block-tol", args.block_tol)):
+        if not 0 < value < 1:
+            raise ModelError(f"{name} must lie between 0 and 1, got {value:g}")
+    return {"backend": args.backend, "solver": args.solver, "tol": args.tol,
+            "compression": Compression(tolerance=args.block_tol), "cache": not args.no_cache,
+            "cache_dir": args.cache_dir}
+
+
 class _Parser(argparse.ArgumentParser):
     """argparse with bem3d's one-line error and exit code 2 (the usage stays in --help)."""
 
@@ -58,16 +89,14 @@ def _parser():
     p = sub.add_parser("extract", help="compute the capacitance matrices")
     _add_model_options(p)
     _add_run_guards(p)
-    p.add_argument("--solver", choices=["auto", "direct", "cg"], default="auto",
-                   help="direct (Cholesky), cg (conjugate gradients) or auto by size")
-    p.add_argument("--tol", type=float, default=1e-7,
-                   help="CG relative residual; capacitance error is about its square")
+    _add_solver_options(p)
     p.add_argument("--quiet", action="store_true", help="print nothing but errors")
 
     p = sub.add_parser("field", help="capacitance plus potential, field and energy density "
                                      "on a grid, slices and points")
     _add_model_options(p)
     _add_run_guards(p)
+    _add_solver_options(p)
     p.add_argument("--box", type=float, nargs=6, metavar=("XMIN", "YMIN", "ZMIN", "XMAX", "YMAX", "ZMAX"),
                    help="field box in the mesh unit (default: the model's box plus a margin)")
     p.add_argument("--margin", type=float, default=0.5,
@@ -149,7 +178,7 @@ def _count_panels(model, max_panels, quiet):
     return n
 
 
-def _announce(n_panels, solver, quiet, n_points=0, excitations=1):
+def _announce(n_panels, options, quiet, n_points=0, excitations=1):
     """Print the time estimate of a dense run expected to be long, before it starts."""
     from .pipeline import choose_backend
     from .resources import available_memory
@@ -157,7 +186,8 @@ def _announce(n_panels, solver, quiet, n_points=0, excitations=1):
 
     if quiet or n_panels is None:
         return
-    backend, solver = choose_backend(n_panels, "auto", solver, available_memory())
+    backend, solver = choose_backend(n_panels, options.get("backend", "auto"),
+                                     options.get("solver", "auto"), available_memory())
     if backend != "dense":
         return
     line = describe_estimate(estimate_seconds(n_panels, solver, n_points, excitations))
@@ -165,7 +195,20 @@ def _announce(n_panels, solver, quiet, n_points=0, excitations=1):
         print(line, file=sys.stderr, flush=True)
 
 
-def _run_extract(model, solver="auto", tol=1e-7, quiet=False, force=False, max_panels=None):
+def _solver_line(solver):
+    """One line on how the charges were found: backend, method, iterations, residual."""
+    line = f"solver: {solver.get('backend', 'dense')} backend, {solver.get('solver')}"
+    if solver.get("iterations"):
+        line += (f", {solver['iterations']} iterations to relative residual "
+                 f"{solver['relative_residual']:.1e}")
+        if not solver.get("converged", True):
+            line += f" (NOT converged to {solver['tolerance']:.0e})"
+    if solver.get("cache") in ("hit", "stored"):
+        line += f"; operator cache {solver['cache']}: {solver['cache_file']}"
+    return line
+
+
+def _run_extract(model, options, quiet=False, force=False, max_panels=None):
     from .export import CAUTION, output_names, write_outputs
     from .pipeline import extract
     from .safety import check_output_folder, staged_outputs
@@ -173,8 +216,8 @@ def _run_extract(model, solver="auto", tol=1e-7, quiet=False, force=False, max_p
     inputs = _inputs(model)
     check_output_folder(model.output_folder, inputs, output_names(model), force)
     start = time.perf_counter()
-    _announce(_count_panels(model, max_panels, quiet), solver, quiet)
-    panels, result, warnings = extract(model, solver=solver, tol=tol, progress=not quiet)
+    _announce(_count_panels(model, max_panels, quiet), options, quiet)
+    panels, result, warnings = extract(model, progress=not quiet, **options)
     result.timings_s["total"] = time.perf_counter() - start
     with staged_outputs(model.output_folder, inputs, force) as stage:
         files = write_outputs(stage, panels, result, model, warnings)
@@ -183,6 +226,7 @@ def _run_extract(model, solver="auto", tol=1e-7, quiet=False, force=False, max_p
         for w in warnings:
             print(f"warning: {w}", file=sys.stderr)
         print(result.table())
+        print(_solver_line(result.solver))
         t = result.timings_s
         print(f"wall time {t['total']:.2f} s (assembly {t['assembly']:.2f} s, "
               f"solve {t['solve']:.2f} s); peak memory {result.solver['peak_memory_MiB']:.0f} MiB")
@@ -216,7 +260,7 @@ def _field_request(args, model):
                         unit_fields=args.unit_fields, png=args.png)
 
 
-def _run_field(model, request, quiet=False, force=False, max_panels=None):
+def _run_field(model, request, options, quiet=False, force=False, max_panels=None):
     from dataclasses import replace
 
     from .export import output_names
@@ -235,11 +279,11 @@ def _run_field(model, request, quiet=False, force=False, max_panels=None):
     grid, slice_grids, listed = plan
     n_points = (math.prod(grid.shape) + sum(math.prod(g.shape) for _, _, g in slice_grids)
                 + (0 if listed is None else len(listed)))
-    _announce(n_panels, "auto", quiet, n_points,
+    _announce(n_panels, options, quiet, n_points,
               1 + (panels.n_conductors if request.unit_fields else 0))
     result = solve_panels(panels, model.volts, model.relative_permittivity, progress=not quiet,
                           ground_z=model.ground_z_m, floating=model.floating,
-                          dielectrics=read_dielectrics(model))
+                          dielectrics=read_dielectrics(model), **options)
     result.timings_s["total"] = time.perf_counter() - start      # to the capacitance
     with staged_outputs(model.output_folder, inputs, force) as stage:
         record, files = map_fields(panels, result, replace(model, output_folder=stage), request,
@@ -327,7 +371,7 @@ def _demo(args):
 
     # the board face z = 0 carries the pads: slice just above it, between grid planes
     _run_field(model, FieldRequest(slices=[(2, demo.SLICE_Z_MM * 1e-3)], png=True),
-               force=args.force)
+               {"cache": False}, force=args.force)
     print(f"demo files are in {folder.resolve()}")
     return 0
 
@@ -336,13 +380,13 @@ def main(argv=None):
     args = _parser().parse_args(argv)
     try:
         if args.command == "extract":
-            _run_extract(_model_from_args(args), solver=args.solver, tol=args.tol,
-                         quiet=args.quiet, force=args.force, max_panels=args.max_panels)
+            _run_extract(_model_from_args(args), _solver_options(args), quiet=args.quiet,
+                         force=args.force, max_panels=args.max_panels)
             return 0
         if args.command == "field":
             model = _model_from_args(args)
-            _run_field(model, _field_request(args, model), quiet=args.quiet, force=args.force,
-                       max_panels=args.max_panels)
+            _run_field(model, _field_request(args, model), _solver_options(args),
+                       quiet=args.quiet, force=args.force, max_panels=args.max_panels)
             return 0
         if args.command in ("sweep", "converge"):
             from . import converge, sweep

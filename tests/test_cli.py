@@ -8,6 +8,7 @@ import sys
 import meshio
 import numpy as np
 import pytest
+import reference_values as ref
 
 from bem3d import shapes
 from bem3d.cli import main
@@ -90,6 +91,44 @@ def test_model_file_sets_units_permittivity_volts_and_folder(two_spheres, tmp_pa
     assert record["potentials_V"] == [0.0, -1.5]
     assert record["solver"]["relative_permittivity"] == 2.0
     assert (tmp_path / "model_out" / "pair.cir").exists()
+
+
+def test_compressed_backend_and_its_cache_from_the_command_line(two_spheres, tmp_path, capsys):
+    # Two 1 mm spheres 3 mm apart against the bispherical series (Smythe 1950, in
+    # reference_values.two_spheres), loosely: the 288-panel spheres are 2-3 % low. The
+    # compressed backend against the dense one on the same panels, tightly.
+    cache = tmp_path / "cache"
+    records = {}
+    for name, extra in [("dense", ["--backend", "dense"]),
+                        ("stored", ["--backend", "compressed", "--cache-dir", cache]),
+                        ("hit", ["--backend", "compressed", "--cache-dir", cache]),
+                        ("off", ["--backend", "compressed", "--no-cache"])]:
+        out = tmp_path / name
+        code, stdout, _ = run(["extract", *two_spheres, "--units", "mm", "--out", out, *extra],
+                              capsys)
+        assert code == 0 and "solver: " in stdout
+        records[name] = json.loads((out / "result.json").read_text())
+    assert records["stored"]["solver"]["cache"] == "stored"
+    assert records["hit"]["solver"]["cache"] == "hit"
+    assert records["off"]["solver"]["cache"] == "off"
+    assert len(list(cache.glob("*.npz"))) == 1
+    dense = np.array(records["dense"]["maxwell_capacitance_F"])
+    np.testing.assert_allclose(dense, ref.two_spheres(1e-3, 3e-3), rtol=4e-2)
+    for name in ("stored", "hit", "off"):
+        assert records[name]["solver"]["backend"] == "compressed"
+        np.testing.assert_allclose(records[name]["maxwell_capacitance_F"], dense,
+                                   rtol=1e-6, atol=1e-6 * dense.max())
+
+
+@pytest.mark.parametrize("extra, words", [(["--block-tol", "0"], "--block-tol"),
+                                          (["--tol", "2"], "--tol"),
+                                          (["--backend", "compressed", "--solver", "direct"],
+                                           "direct solver needs the dense backend")])
+def test_bad_solver_options_exit_2(two_spheres, tmp_path, capsys, extra, words):
+    out = tmp_path / "res"
+    code, _, err = run(["extract", *two_spheres, "--out", out, *extra], capsys)
+    assert code == 2 and words in err and len(err.strip().splitlines()) == 1
+    assert not out.exists()
 
 
 def test_check_mesh_reports_panels_and_conductors(two_spheres, capsys):
