@@ -179,7 +179,7 @@ def _count_panels(model, max_panels, quiet):
 
 
 def _announce(n_panels, options, quiet, n_points=0, excitations=1):
-    """Print the time estimate of a dense run expected to be long, before it starts."""
+    """Print the time estimate of a run expected to be long, before it starts."""
     from .pipeline import choose_backend
     from .resources import available_memory
     from .safety import describe_estimate, estimate_seconds
@@ -188,9 +188,8 @@ def _announce(n_panels, options, quiet, n_points=0, excitations=1):
         return
     backend, solver = choose_backend(n_panels, options.get("backend", "auto"),
                                      options.get("solver", "auto"), available_memory())
-    if backend != "dense":
-        return
-    line = describe_estimate(estimate_seconds(n_panels, solver, n_points, excitations))
+    line = describe_estimate(estimate_seconds(n_panels, solver, n_points, excitations,
+                                              backend=backend))
     if line:
         print(line, file=sys.stderr, flush=True)
 

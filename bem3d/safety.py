@@ -33,6 +33,12 @@ FLOP_RATE_PER_THREAD = 3.5e9
 #: matrix in 1.1 s).
 CG_ITERATIONS = 50
 MATRIX_BYTES_PER_SECOND = 1e10
+#: Compressed backend: thread-seconds per N log2 N of assembly, and of one CG iteration with
+#: five right-hand sides; measured on this project's 2-core machine (tools/bench_scale.py: a
+#: 131,072-panel sphere assembled in 24.8 s; the 129,296-panel sensor head, five conductors,
+#: 48 iterations in 20.9 s).
+COMPRESSED_ASSEMBLY_SECONDS = 2.2e-5
+COMPRESSED_ITERATION_SECONDS = 4.0e-7
 #: Field evaluation: seconds per point-panel pair on one thread, a fixed part plus a part per
 #: excitation; measured there (8,192 panels x 40,000 points: 2.35 s with one excitation,
 #: 9.8 s with six, on 2 threads).
@@ -74,20 +80,27 @@ def threads():
     return numba.get_num_threads()
 
 
-def estimate_seconds(n_panels, solver="direct", n_points=0, excitations=1, n_threads=None):
-    """Expected wall time (s) of a dense run, by stage: {'assembly', 'Cholesky' or 'CG',
-    'fields'}; stages that cost nothing are left out.
+def estimate_seconds(n_panels, solver="direct", n_points=0, excitations=1, n_threads=None,
+                     backend="dense"):
+    """Expected wall time (s) of a run, by stage: {'assembly', 'Cholesky' or 'CG', 'fields'};
+    stages that cost nothing are left out.
 
     solver: 'direct' (Cholesky) or 'cg'; n_points: field points; excitations: right-hand sides
-    evaluated at each point. Rates are this project's measured ones scaled by the thread count,
-    so other machines differ by their speed per core; CG assumes a typical iteration count."""
+    evaluated at each point; backend: 'dense' or 'compressed'. Rates are this project's
+    measured ones scaled by the thread count, so other machines differ by their speed per
+    core; CG assumes a typical iteration count."""
     n_threads = n_threads or threads()
     fixed, per_excitation = FIELD_PAIR_SECONDS
-    stages = {"assembly": n_panels**2 / (PAIR_RATE_PER_THREAD * n_threads)}
-    if solver == "direct":
-        stages["Cholesky"] = n_panels**3 / 3 / (FLOP_RATE_PER_THREAD * n_threads)
+    if backend == "compressed":
+        work = n_panels * math.log2(max(n_panels, 2)) / n_threads
+        stages = {"assembly": work * COMPRESSED_ASSEMBLY_SECONDS,
+                  "CG": work * CG_ITERATIONS * COMPRESSED_ITERATION_SECONDS}
+    elif solver == "direct":
+        stages = {"assembly": n_panels**2 / (PAIR_RATE_PER_THREAD * n_threads),
+                  "Cholesky": n_panels**3 / 3 / (FLOP_RATE_PER_THREAD * n_threads)}
     else:
-        stages["CG"] = CG_ITERATIONS * 8 * n_panels**2 / MATRIX_BYTES_PER_SECOND
+        stages = {"assembly": n_panels**2 / (PAIR_RATE_PER_THREAD * n_threads),
+                  "CG": CG_ITERATIONS * 8 * n_panels**2 / MATRIX_BYTES_PER_SECOND}
     stages["fields"] = n_points * n_panels * (fixed + per_excitation * excitations) / n_threads
     return {k: v for k, v in stages.items() if v > 0}
 

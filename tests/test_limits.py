@@ -137,6 +137,14 @@ def test_estimate_grows_with_the_work_and_shrinks_with_threads():
         assert threaded[stage] == pytest.approx(one[stage] / 2)
 
 
+def test_compressed_estimate_grows_as_n_log_n():
+    # The hierarchical-matrix work grows as N log N (Hackbusch 1999, Computing 62, 89-108).
+    one, two = (safety.estimate_seconds(n, "cg", n_threads=1, backend="compressed")
+                for n in (2**16, 2**17))
+    for stage in ("assembly", "CG"):
+        assert two[stage] / one[stage] == pytest.approx(2 * 17 / 16)
+
+
 def test_estimate_is_announced_only_for_long_runs():
     assert safety.describe_estimate({"assembly": 1.0}, n_threads=2) is None
     line = safety.describe_estimate({"assembly": 100.0, "CG": 50.0}, n_threads=2)
