@@ -15,7 +15,7 @@ from .errors import Bem3dError, ModelError
 EXIT_BAD_INPUT = 2
 
 
-def _add_model_options(p):
+def add_model_options(p):
     p.add_argument("inputs", nargs="+", metavar="INPUT",
                    help="mesh files (one conductor per file, or groups within one file) "
                         "or one TOML model file")
@@ -87,14 +87,14 @@ def _parser():
     sub = parser.add_subparsers(dest="command", required=True)
 
     p = sub.add_parser("extract", help="compute the capacitance matrices")
-    _add_model_options(p)
+    add_model_options(p)
     _add_run_guards(p)
     _add_solver_options(p)
     p.add_argument("--quiet", action="store_true", help="print nothing but errors")
 
     p = sub.add_parser("field", help="capacitance plus potential, field and energy density "
                                      "on a grid, slices and points")
-    _add_model_options(p)
+    add_model_options(p)
     _add_run_guards(p)
     _add_solver_options(p)
     p.add_argument("--box", type=float, nargs=6, metavar=("XMIN", "YMIN", "ZMIN", "XMAX", "YMAX", "ZMAX"),
@@ -130,7 +130,7 @@ def _parser():
     return parser
 
 
-def _model_from_args(args):
+def model_from_args(args):
     from .model import Model, load_model, parse_dielectrics, parse_volts
 
     if len(args.inputs) == 1 and args.inputs[0].lower().endswith(".toml"):
@@ -379,11 +379,11 @@ def main(argv=None):
     args = _parser().parse_args(argv)
     try:
         if args.command == "extract":
-            _run_extract(_model_from_args(args), _solver_options(args), quiet=args.quiet,
+            _run_extract(model_from_args(args), _solver_options(args), quiet=args.quiet,
                          force=args.force, max_panels=args.max_panels)
             return 0
         if args.command == "field":
-            model = _model_from_args(args)
+            model = model_from_args(args)
             _run_field(model, _field_request(args, model), _solver_options(args),
                        quiet=args.quiet, force=args.force, max_panels=args.max_panels)
             return 0

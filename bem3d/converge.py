@@ -260,7 +260,7 @@ def converge(panels, refinements=2, smooth=True, crease_degrees=CREASE_DEGREES, 
 
 def add_converge_parser(subparsers):
     """Add the 'converge' command to the CLI's subparsers."""
-    from .cli import _add_model_options
+    from .cli import add_model_options
 
     p = subparsers.add_parser(
         "converge", help="refine the mesh and extrapolate the capacitances (Richardson)",
@@ -268,7 +268,7 @@ def add_converge_parser(subparsers):
                     "times the panels) and report Richardson-extrapolated capacitances with "
                     "an error estimate per matrix entry.",
         conflict_handler="resolve")
-    _add_model_options(p)
+    add_model_options(p)
     p.add_argument("--out", type=Path, help="output folder (default: <first input>_converge)")
     p.add_argument("--refinements", type=int, choices=[1, 2], default=2,
                    help="subdivisions (default 2, which also measures the order)")
@@ -312,14 +312,14 @@ def write_convergence(conv, folder):
 
 def run_converge(args):
     """The 'converge' command: exit code 0; bad input raises Bem3dError."""
-    from .cli import _model_from_args
+    from .cli import model_from_args
     from .meshio_io import read_conductors
     from .pipeline import read_dielectrics
 
     if not 0.0 < args.crease_angle < 180.0:
         raise ModelError(f"--crease-angle must be between 0 and 180 degrees, got "
                          f"{args.crease_angle:g}")
-    model = _model_from_args(args)
+    model = model_from_args(args)
     if args.out is None:
         model.output_folder = Path(f"{Path(args.inputs[0]).stem}_converge")
     panels, warnings = read_conductors(model.meshes, units=model.length_unit)

@@ -613,7 +613,7 @@ def plot_summary(rows, x_column, group_columns, entries, target):
 
 def add_sweep_parser(subparsers):
     """Add the 'sweep' command to the CLI's subparsers."""
-    from .cli import _add_model_options
+    from .cli import add_model_options
 
     p = subparsers.add_parser(
         "sweep", help="run many cases: moved or scaled conductors, or a set of files",
@@ -621,7 +621,7 @@ def add_sweep_parser(subparsers):
                     "named conductors, or run each of a set of mesh/model files.",
         epilog=EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter,
         conflict_handler="resolve")
-    _add_model_options(p)
+    add_model_options(p)
     p.add_argument("--out", type=Path, help="sweep folder (default: bem3d_sweep)")
     p.set_defaults(moves=[])
     for kind, metavar, text in [
@@ -652,10 +652,10 @@ def add_sweep_parser(subparsers):
 
 def _model(inputs, args):
     """The model of some inputs with the command line's overrides (as 'bem3d extract')."""
-    from .cli import _model_from_args
+    from .cli import model_from_args
 
     # Every model option of the sweep's parser is passed on; the output folder is the case's.
-    return _model_from_args(SimpleNamespace(**{**vars(args), "inputs": list(inputs),
+    return model_from_args(SimpleNamespace(**{**vars(args), "inputs": list(inputs),
                                                "out": Path(".")}))
 
 
