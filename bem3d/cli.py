@@ -50,9 +50,9 @@ def _add_solver_options(p):
     p.add_argument("--tol", type=float, default=1e-7,
                    help="CG relative residual (default 1e-7); mutual capacitances settle to "
                         "about this relative accuracy, self capacitances to better")
-    p.add_argument("--block-tol", type=float, default=1e-4,
+    p.add_argument("--block-tol", type=float, default=1e-5,
                    help="compressed backend: relative accuracy of each low-rank block "
-                        "(default 1e-4)")
+                        "(default 1e-5)")
     p.add_argument("--cache-dir", type=Path,
                    help="where the compressed backend keeps assembled operators (default "
                         "$BEM3D_CACHE_DIR, else ~/.cache/bem3d)")

@@ -40,7 +40,10 @@ op = bempp.operators.boundary.laplace.single_layer(space, space, space, assemble
 A = op.weak_form().A
 t1 = time.perf_counter()
 b = grid.volumes
-q = scipy.linalg.cho_solve(scipy.linalg.cho_factor(A), b)
+if sys.argv[2:] == ["assembly-only"]:      # a lower bound where the solve would take too long
+    q = np.full(len(b), np.nan)
+else:
+    q = scipy.linalg.cho_solve(scipy.linalg.cho_factor(A), b)
 t2 = time.perf_counter()
 c = 8.8541878188e-12 * float(b @ q)       # its kernel is 1/(4 pi r): C = eps0 b.A^-1.b
 print(json.dumps({"C": c, "assembly": t1 - t0, "solve": t2 - t1,

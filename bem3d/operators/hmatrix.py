@@ -48,7 +48,7 @@ class Compression:
     it, then SVD truncation to the rest). eta: admissibility min(diam) <= eta * dist. leaf_size:
     most panels in a leaf cluster. max_rank: a block needing more is stored dense."""
 
-    tolerance: float = 1e-4
+    tolerance: float = 1e-5
     eta: float = 1.5
     leaf_size: int = 32
     max_rank: int = 128
