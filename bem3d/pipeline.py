@@ -204,8 +204,8 @@ def _solve_compressed(panels, rhs, eps_r, rules, tol, compression, ground_z, hav
         settings["memory_estimate_MiB"] = need / 2**20
         _log(progress, f"assembling {len(panels)} panels, compressed backend (tolerance "
                        f"{compression.tolerance:.0e}): operator ~{_gib(plan.operator_bytes())} "
-                       f"(dense leaves {_gib(8 * plan.dense_numbers)}, low-rank blocks "
-                       f"~{_gib(8 * plan.lowrank_numbers)} estimated), ~{_gib(need)} in all, "
+                       f"(dense leaves {_gib(plan.dense_bytes)}, low-rank blocks "
+                       f"~{_gib(plan.lowrank_bytes)} estimated), ~{_gib(need)} in all, "
                        f"of {_gib(have)} available ...")
         if need > MEMORY_FRACTION * have:
             raise ResourceError(

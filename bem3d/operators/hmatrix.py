@@ -25,6 +25,11 @@ from .cluster import ClusterTree, block_partition
 
 #: Room (float64 numbers) for the ACA factors of one batch of admissible blocks.
 BATCH_NUMBERS = 2**24
+#: The stored entries and factors are single precision: their rounding (6e-8 relative) is far
+#: below the block tolerance and the quadrature's accuracy, and it halves the memory and the
+#: bytes each product streams. Products, ACA and the preconditioner compute in double; the
+#: stored operator is exactly symmetric, so CG sees a symmetric matrix.
+STORAGE = np.float32
 #: Shares of a block's tolerance given to ACA's stopping test and to the SVD truncation: ACA's
 #: estimate of its own error can be a few times too small, so it gets the smaller share.
 ACA_SHARE, SVD_SHARE = 0.05, 0.5
@@ -101,11 +106,11 @@ def _compress(blocks, compression, kargs, budget=None):
                                      SVD_SHARE * eps, eps < VERIFY_BELOW, kargs)
         r = np.maximum(ranks[start:stop], 0)
         offsets = np.concatenate(([0], np.cumsum(r * (batch[:, 1] + batch[:, 3]))))
-        piece = np.empty(offsets[-1])
+        piece = np.empty(offsets[-1], STORAGE)
         hkernels.gather_blocks(batch, slots, ranks[start:stop], scratch, offsets, piece)
         pieces.append(piece)
         start = stop
-        held = 8 * sum(len(p) for p in pieces)
+        held = sum(p.nbytes for p in pieces)
         if budget is not None and held > budget:
             raise ResourceError(
                 f"the low-rank blocks outgrew their memory estimate ({held / 2**30:.1f} GiB "
@@ -116,7 +121,7 @@ def _compress(blocks, compression, kargs, budget=None):
 
 def _concatenate(pieces):
     # one array without holding two copies: pages of `out` become resident only as filled
-    out = np.empty(sum(len(p) for p in pieces))
+    out = np.empty(sum(len(p) for p in pieces), STORAGE)
     pos = 0
     while pieces:
         piece = pieces.pop(0)
@@ -178,9 +183,19 @@ class HMatrixPlan:
             per_number[c] = store.sum() / np.sum(b[:, 1] * b[:, 3])
         return int(np.sum(per_number[size_class] * self.far[:, 1] * self.far[:, 3]))
 
+    @property
+    def dense_bytes(self):
+        """Bytes of the dense leaves (exact)."""
+        return STORAGE().itemsize * self.dense_numbers
+
+    @property
+    def lowrank_bytes(self):
+        """Estimated bytes of the low-rank factors."""
+        return STORAGE().itemsize * self.lowrank_numbers
+
     def operator_bytes(self):
-        """Estimated bytes of the assembled operator: dense leaves (exact) + low-rank factors."""
-        return 8 * (self.dense_numbers + self.lowrank_numbers)
+        """Estimated bytes of the assembled operator: dense leaves + low-rank factors."""
+        return self.dense_bytes + self.lowrank_bytes
 
     def work_bytes(self, n_rhs, subdomain_size):
         """Bytes beside the operator: the kernel arguments (freed after assembly), the
@@ -221,7 +236,7 @@ class HMatrixOperator(LinearOperator):
         """Compress the admissible blocks, fill the others. memory_limit (bytes) for the
         operator is checked as the low-rank factors come in, so a run that outgrows its
         estimate stops cleanly instead of being killed."""
-        budget = None if memory_limit is None else memory_limit - 8 * plan.dense_numbers
+        budget = None if memory_limit is None else memory_limit - plan.dense_bytes
         ranks, pieces = _compress(plan.far, plan.compression, plan.kargs, budget)
         low = ranks > 0
         lr_blocks = plan.far[low]
@@ -230,12 +245,12 @@ class HMatrixOperator(LinearOperator):
         # blocks that did not compress below the break-even rank join the dense leaves
         dense_blocks = np.concatenate((plan.near, plan.far[ranks < 0]))
         dense_sizes = dense_blocks[:, 1] * dense_blocks[:, 3]
-        need = 8 * (lr_data.size + dense_sizes.sum())
+        need = lr_data.nbytes + STORAGE().itemsize * dense_sizes.sum()
         if memory_limit is not None and need > memory_limit:
             raise ResourceError(f"the compressed operator needs {need / 2**30:.1f} GiB, more "
                                 f"than the {memory_limit / 2**30:.1f} GiB allowed")
         dense_offsets = np.concatenate(([0], np.cumsum(dense_sizes))).astype(np.int64)
-        dense_data = np.empty(dense_offsets[-1])
+        dense_data = np.empty(dense_offsets[-1], STORAGE)
         hkernels.fill_dense_blocks(dense_blocks, dense_offsets, dense_data, plan.kargs)
         lr_offsets = np.concatenate(
             ([0], np.cumsum(lr_ranks * (lr_blocks[:, 1] + lr_blocks[:, 3])))).astype(np.int64)
