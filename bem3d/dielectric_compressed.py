@@ -4,11 +4,11 @@ The unknowns, rows and scaling are those of dielectric.solve_system (dense LU): 
 are the single-layer rows P, interface rows w_k (sigma_k - lambda_k/(2 pi) (K sigma)_k) with
 w_k = scale * area_k. P is the symmetric H-matrix over all panels, its cluster tree split at
 the root into conductors and interfaces, so that its conductor block and its subdomains are
-those of the conductors alone; K (interface rows x all panels) is a general H-matrix
-(operators.hfield). Restarted GMRES (Saad & Schultz 1986, SIAM J. Sci. Stat. Comput. 7,
-856-869) with a block-diagonal preconditioner: two-level Schwarz on the conductor rows, 1/w_k
-on the interface rows (the diagonal of that block: a flat panel's own normal field vanishes).
-"""
+those of the conductors alone; the blocks among interfaces, never used, are left out. K
+(interface rows x all panels) is a general H-matrix (operators.hfield). Restarted GMRES (Saad
+& Schultz 1986, SIAM J. Sci. Stat. Comput. 7, 856-869) with a block-diagonal preconditioner:
+two-level Schwarz on the conductor rows, 1/w_k on the interface rows (the diagonal of that
+block: a flat panel's own normal field vanishes)."""
 
 import math
 import time
@@ -47,7 +47,9 @@ class DielectricPlan:
         if len(inter):
             rows = ClusterTree.build(inter.vertices, inter.centroids, leaf)
             tree = ClusterTree.join(tree, rows)
-        self.single = HMatrixPlan(self.both, rules, compression, system.ground_z, tree=tree)
+        # only the conductor rows of P are used: the blocks among interfaces are left out
+        self.single = HMatrixPlan(self.both, rules, compression, system.ground_z, tree=tree,
+                                  leading=len(conductors))
         if len(inter):
             ordered = Panels(inter.vertices[rows.perm], inter.owner[rows.perm], inter.names)
             sources = self.single.panels
@@ -73,12 +75,9 @@ class DielectricPlan:
 
 
 def _conductor_schwarz(operator, nc, max_size):
-    # the Schwarz pieces of P on the subdomains inside the conductor half of the tree: the
-    # preconditioner of P_cc alone (the coarse matrix's leading block is R_c P_cc R_c^T)
-    perm, bounds, offsets, inverses, coarse = operator.schwarz_parts(max_size)
-    d = int(np.searchsorted(bounds, nc))
-    return SchwarzPreconditioner(perm[:nc], bounds[:d + 1], offsets[:d + 1],
-                                 inverses[:offsets[d]], coarse[:d, :d],
+    # Schwarz on the subdomains inside the conductor half of the tree: that of P_cc alone
+    perm, bounds, offsets, inverses, coarse = operator.schwarz_parts(max_size, nc)
+    return SchwarzPreconditioner(perm[:nc], bounds, offsets, inverses, coarse,
                                  factor=1.0 / operator.scale)
 
 

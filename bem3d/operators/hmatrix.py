@@ -201,14 +201,20 @@ class HMatrixPlan:
 
     panels: Panels (m). Builds the cluster tree and block partition, renumbers the panels and
     measures the ranks of a sample of admissible blocks to estimate the low-rank storage.
-    tree: a ClusterTree of the panels to use instead of bisecting them afresh."""
+    tree: a ClusterTree of the panels to use instead of bisecting them afresh. leading: keep
+    only the blocks with rows or columns among the first `leading` panels of the cluster
+    numbering; the operator is then right in those rows and columns only (the others lack
+    the blocks among themselves)."""
 
     def __init__(self, panels, rules=PairRules(), compression=Compression(), ground_z=None,
-                 tree=None):
+                 tree=None, leading=None):
         self.compression, self.rules = compression, rules
         self.tree = tree if tree is not None else ClusterTree.build(
             panels.vertices, panels.centroids, compression.leaf_size)
         self.near, self.far = split_blocks(self.tree, compression)
+        if leading is not None:
+            self.near, self.far = (b[(b[:, 0] < leading) | (b[:, 2] < leading)]
+                                   for b in (self.near, self.far))
         self.n = len(panels)
         self.panels = Panels(panels.vertices[self.tree.perm], panels.owner[self.tree.perm],
                              panels.names)
@@ -314,21 +320,35 @@ class HMatrixOperator(BlockProducts, LinearOperator):
         return self
 
     def diagonal(self):
-        """The diagonal of P, in the caller's panel order."""
-        d = np.empty(self.shape[0])
+        """The diagonal of P, in the caller's panel order (0 where a plan's `leading` left
+        the diagonal block out)."""
+        d = np.zeros(self.shape[0])
         for (r0, m, c0, _), off in zip(self.dense_blocks, self.dense_offsets):
             if r0 == c0:
                 d[self.perm[r0:r0 + m]] = self.dense_data[off:off + m * m:m + 1]
         return self.scale * d
 
-    def schwarz_parts(self, max_size):
+    def schwarz_parts(self, max_size, leading=None):
         """Pieces of a two-level additive Schwarz preconditioner on clusters of <= max_size.
 
         Returns (perm, bounds, inverse_offsets, inverses, coarse) of the unscaled integrals
         (P / scale): subdomain d is panels perm[bounds[d]:bounds[d+1]]; its principal block's
         inverse (row-major) is at inverses[inverse_offsets[d]:]; coarse is R P R^T for the
-        subdomain indicators R."""
+        subdomain indicators R. leading: cover only the first `leading` panels of the cluster
+        numbering (whole clusters of the tree): the preconditioner of that principal block."""
         bounds = self.tree.partition(max_size)
+        if leading is not None:
+            bounds = bounds[:np.searchsorted(bounds, leading) + 1]
+        end = bounds[-1]
+
+        def within(blocks, offsets):
+            # the blocks inside the covered panels (offsets: the start of each block's data)
+            keep = (blocks[:, 0] + blocks[:, 1] <= end) & (blocks[:, 2] + blocks[:, 3] <= end)
+            return keep, blocks[keep], offsets[:-1][keep]
+
+        _, dense_blocks, dense_offsets = within(self.dense_blocks, self.dense_offsets)
+        low, lr_blocks, lr_offsets = within(self.lr_blocks, self.lr_offsets)
+        lr_ranks = self.lr_ranks[low]
         sizes = np.diff(bounds)
         domain_of = np.repeat(np.arange(len(sizes)), sizes)
 
@@ -343,16 +363,16 @@ class HMatrixOperator(BlockProducts, LinearOperator):
             ptr = np.searchsorted(d[idx], np.arange(len(sizes) + 1))
             return ptr.astype(np.int64), idx.astype(np.int64)
 
-        dense_ptr, dense_idx = inside(self.dense_blocks)
-        lr_ptr, lr_idx = inside(self.lr_blocks)
+        dense_ptr, dense_idx = inside(dense_blocks)
+        lr_ptr, lr_idx = inside(lr_blocks)
         inv_offsets = np.concatenate(([0], np.cumsum(sizes * sizes))).astype(np.int64)
         inverses = np.empty(inv_offsets[-1])
         with threadpool_limits(limits=1, user_api="blas"):     # as in _compress
-            hkernels.subdomain_inverses(bounds, dense_ptr, dense_idx, self.dense_blocks,
-                                        self.dense_offsets, self.dense_data, lr_ptr, lr_idx,
-                                        self.lr_blocks, self.lr_offsets, self.lr_ranks,
-                                        self.lr_data, inv_offsets, inverses)
-        coarse = hkernels.coarse_matrix(domain_of, len(sizes), self.dense_blocks,
-                                        self.dense_offsets, self.dense_data, self.lr_blocks,
-                                        self.lr_offsets, self.lr_ranks, self.lr_data)
+            hkernels.subdomain_inverses(bounds, dense_ptr, dense_idx, dense_blocks,
+                                        dense_offsets, self.dense_data, lr_ptr, lr_idx,
+                                        lr_blocks, lr_offsets, lr_ranks, self.lr_data,
+                                        inv_offsets, inverses)
+        coarse = hkernels.coarse_matrix(domain_of, len(sizes), dense_blocks, dense_offsets,
+                                        self.dense_data, lr_blocks, lr_offsets, lr_ranks,
+                                        self.lr_data)
         return self.perm, bounds, inv_offsets, inverses, coarse
