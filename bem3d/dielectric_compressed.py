@@ -43,7 +43,7 @@ class DielectricPlan:
         tree = ClusterTree.build(conductors.vertices, conductors.centroids, leaf)
         # below the whole model's size, so that no subdomain mixes conductors and interfaces
         self.subdomain_size = min(subdomain_size, max(1, system.n_panels - 1))
-        self.field = None              # every dielectric face lies on a conductor
+        self.field = None              # stays so if every dielectric face lies on a conductor
         if len(inter):
             rows = ClusterTree.build(inter.vertices, inter.centroids, leaf)
             tree = ClusterTree.join(tree, rows)
