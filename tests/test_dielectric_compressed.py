@@ -20,6 +20,7 @@ from bem3d.dielectric import (DielectricBody, _interface_rows, plan_dielectrics,
 from bem3d.errors import ResourceError
 from bem3d.dielectric_compressed import DielectricPlan
 from bem3d.geometry import Panels
+from bem3d.operators.cluster import ClusterTree, block_partition
 from bem3d.operators.hfield import FieldOperator
 from bem3d.operators.hmatrix import Compression
 from bem3d.pipeline import solve_panels
@@ -44,6 +45,52 @@ def two_in_a_box():
 def shell_closed_form(a, b, eps_r):
     # closed form, e.g. Jackson, Classical Electrodynamics 3rd ed. 1999, ch. 4
     return 4 * math.pi * ref.EPS0 / ((1 / eps_r) * (1 / a - 1 / b) + 1 / b)
+
+
+def test_joined_tree_keeps_the_two_panel_sets_apart(two_in_a_box):
+    """The root's children are the conductors' tree and the interfaces' tree, each a
+    bisection of its own panels (the definition of a cluster tree, as in test_hmatrix.py)."""
+    cond, bodies = two_in_a_box
+    inter = plan_dielectrics(cond, bodies).interfaces
+    first = ClusterTree.build(cond.vertices, cond.centroids, 16)
+    second = ClusterTree.build(inter.vertices, inter.centroids, 16)
+    tree = ClusterTree.join(first, second)
+    nc, n = len(cond), len(cond) + len(inter)
+    a, b = tree.child[0]
+    assert (tree.start[a], tree.end[a], tree.start[b], tree.end[b]) == (0, nc, nc, n)
+    assert np.array_equal(np.sort(tree.perm[:nc]), np.arange(nc))
+    assert np.array_equal(np.sort(tree.perm[nc:]), np.arange(nc, n))
+    corners = np.concatenate([cond.vertices, inter.vertices])
+    for c in range(len(tree.start)):
+        if tree.child[c, 0] >= 0:
+            left, right = tree.child[c]
+            assert tree.start[left] == tree.start[c] and tree.end[left] == tree.start[right]
+            assert tree.end[right] == tree.end[c]
+        inside = corners[tree.perm[tree.start[c]:tree.end[c]]].reshape(-1, 3)
+        assert np.all(inside >= tree.lo[c]) and np.all(inside <= tree.hi[c])
+
+
+def test_blocks_of_two_trees_cover_the_matrix_once_and_far_blocks_are_admissible(two_in_a_box):
+    """Admissibility min(diam) <= eta dist (Hackbusch 1999, Computing 62, 89-108) for the
+    general matrix of interface rows and conductor columns."""
+    cond, bodies = two_in_a_box
+    inter = plan_dielectrics(cond, bodies).interfaces
+    rows = ClusterTree.build(inter.vertices, inter.centroids, 16)
+    cols = ClusterTree.build(cond.vertices, cond.centroids, 16)
+    eta = 1.5
+    near, far = block_partition(rows, eta, cols)
+    count = np.zeros((len(inter), len(cond)), np.int64)
+    for t, s in np.concatenate((near, far)):
+        count[rows.start[t]:rows.end[t], cols.start[s]:cols.end[s]] += 1
+    assert np.all(count == 1)
+    assert len(far) > 0
+    for t, s in far:
+        corners_t = inter.vertices[rows.perm[rows.start[t]:rows.end[t]]].reshape(-1, 3)
+        corners_s = cond.vertices[cols.perm[cols.start[s]:cols.end[s]]].reshape(-1, 3)
+        diam = min(np.linalg.norm(np.ptp(c, axis=0)) for c in (corners_t, corners_s))
+        gap = np.maximum(0.0, np.maximum(corners_s.min(0) - corners_t.max(0),
+                                         corners_t.min(0) - corners_s.max(0)))
+        assert diam <= eta * np.linalg.norm(gap)
 
 
 @pytest.mark.parametrize("ground_z", [None, -1.5], ids=["free space", "ground plane"])
