@@ -214,36 +214,68 @@ def solve_with_dielectrics(conductors, bodies, background=1.0, volts=None, rules
     return solve_system(plan_dielectrics(conductors, bodies, background, ground_z), volts, rules)
 
 
+def normal_field_arguments(inter, sources):
+    """The arguments kernels.normal_field_entry takes after (i, l): each interface panel's
+    graded test points, weights and normal, then the source panels and their rules."""
+    bary_near, w_near = triangle_rule(5)
+    bary_mid, w_mid = triangle_rule(2)
+    bary_test, w_test = graded_rule(TEST_POINTS)
+    return (map_points(inter.vertices, bary_test), w_test, inter.normals, sources.vertices,
+            sources.normals, sources.centroids, sources.radii, sources.areas,
+            map_points(sources.vertices, bary_mid), w_mid,
+            map_points(sources.vertices, bary_near), w_near, 2.0, 4.0, 12.0)
+
+
 def _interface_rows(out, system, sources):
     """Fill out (ni, n): over each interface panel's test points, the weighted sum of
     n_k . (field of a unit charge density on each source panel), less that of the source's
     mirror image when there is a grounded plane."""
-    inter = system.interfaces
-    bary_near, w_near = triangle_rule(5)
-    bary_mid, w_mid = triangle_rule(2)
-    bary_test, w_test = graded_rule(TEST_POINTS)
-    test = map_points(inter.vertices, bary_test)
-
-    def field(target, src):
-        assemble_normal_field(target, test, w_test, inter.normals, src.vertices, src.normals,
-                              src.centroids, src.radii, src.areas,
-                              map_points(src.vertices, bary_mid), w_mid,
-                              map_points(src.vertices, bary_near), w_near, 2.0, 4.0, 12.0)
-
-    field(out, sources)
+    assemble_normal_field(out, *normal_field_arguments(system.interfaces, sources))
     if system.ground_z is not None:
         image = np.empty_like(out)          # within system_bytes: no LU copy exists yet
-        field(image, sources.mirrored(system.ground_z))
+        assemble_normal_field(image, *normal_field_arguments(
+            system.interfaces, sources.mirrored(system.ground_z)))
         out -= image
+
+
+def union_panels(system):
+    """Conductor panels then interface panels in one Panels: the order of the unknowns."""
+    conductors, inter = system.conductors, system.interfaces
+    return Panels(np.concatenate([conductors.vertices, inter.vertices]),
+                  np.concatenate([conductors.owner, conductors.n_conductors + inter.owner]),
+                  conductors.names + inter.names)
+
+
+def system_rhs(system):
+    """Right-hand sides (n, conductors): each conductor's unit excitation on its rows."""
+    conductors = system.conductors
+    rhs = np.zeros((system.n_panels, conductors.n_conductors))
+    rhs[:len(conductors)] = conductors.excitation()
+    return rhs
+
+
+def system_result(system, both, total, volts, solver):
+    """The CapacitanceResult of the total charge densities `total` (n, conductors);
+    solver: the record of how they were found (backend, solver, residual, ...)."""
+    conductors = system.conductors
+    free = system.eps_out[:, None] * total[:len(conductors)]
+    maxwell = conductors.excitation().T @ free
+    return CapacitanceResult(
+        names=conductors.names, maxwell=0.5 * (maxwell + maxwell.T), sigma=free,
+        potentials=potential_vector(conductors.names, dict(volts or {})),
+        n_panels=len(conductors),
+        solver={**solver, "interface_panels": len(system.interfaces),
+                "relative_permittivity": system.background,
+                "ground_plane_z_m": system.ground_z},
+        asymmetry=float(np.max(np.abs(maxwell - maxwell.T)) / np.max(np.abs(np.diag(maxwell)))),
+        sources=FieldSources(both, total, 1.0, system.bodies, system.background))
 
 
 def solve_system(system, volts=None, rules=PairRules()):
     """Assemble and solve a DielectricSystem by dense LU: a CapacitanceResult."""
     conductors, inter, lam = system.conductors, system.interfaces, system.lam
     nc, ni = len(conductors), len(inter)
-    both = Panels(np.concatenate([conductors.vertices, inter.vertices]),
-                  np.concatenate([conductors.owner, conductors.n_conductors + inter.owner]),
-                  conductors.names + inter.names)
+    both = union_panels(system)
     # conductor rows: Galerkin potential of all charges (and their images) in vacuum,
     # (V m^2) per (C/m^2); the interface rows of this matrix are overwritten below
     matrix = DenseOperator(both, eps_r=1.0, rules=rules, ground_z=system.ground_z).matrix
@@ -257,20 +289,10 @@ def solve_system(system, volts=None, rules=PairRules()):
     rows *= -(lam / (2 * math.pi))[:, None]
     rows[np.arange(ni), nc + np.arange(ni)] += 1.0
     rows *= (scale * inter.areas)[:, None]
-    rhs = np.zeros((nc + ni, conductors.n_conductors))
-    rhs[:nc] = conductors.excitation()
+    rhs = system_rhs(system)
     total = scipy.linalg.lu_solve(scipy.linalg.lu_factor(matrix), rhs)
-    free = system.eps_out[:, None] * total[:nc]
-    maxwell = conductors.excitation().T @ free
-    potentials = potential_vector(conductors.names, dict(volts or {}))
     residual = float(np.linalg.norm(matrix @ total - rhs) / np.linalg.norm(rhs))
-    return CapacitanceResult(
-        names=conductors.names, maxwell=0.5 * (maxwell + maxwell.T), sigma=free,
-        potentials=potentials, n_panels=nc,
-        solver={"backend": "dense", "solver": "lu (dielectric interfaces)",
-                "interface_panels": ni, "relative_residual": residual,
-                "relative_permittivity": system.background, "pair_rules": rules.as_dict(),
-                "ground_plane_z_m": system.ground_z,
-                "memory_estimate_MiB": system.nbytes / 2**20},
-        asymmetry=float(np.max(np.abs(maxwell - maxwell.T)) / np.max(np.abs(np.diag(maxwell)))),
-        sources=FieldSources(both, total, 1.0, system.bodies, system.background))
+    return system_result(system, both, total, volts,
+                         {"backend": "dense", "solver": "lu (dielectric interfaces)",
+                          "relative_residual": residual, "pair_rules": rules.as_dict(),
+                          "memory_estimate_MiB": system.nbytes / 2**20})

@@ -407,43 +407,49 @@ def evaluate_points(points, sigma, closed, verts, normals, centroids, radii, are
         winding[i] /= 4.0 * math.pi
 
 
+@njit(cache=True, inline="always", error_model="numpy")
+def normal_field_entry(i, l, points, weights, point_normals, verts, normals, centroids, radii,
+                       areas, pts_mid, w_mid, pts_near, w_near, near, mid, far):
+    """sum_q weights_q n_i . int_Tl (x_iq - y)/|x_iq - y|^3 dA_y (dimensionless): the normal
+    field of a unit charge density on panel l, averaged over test points x_iq (m, q, 3) with
+    unit normal n_i. A point on a panel gets the principal value (its own panel contributes
+    no normal field). Rules by distance in panel radii as in evaluate_points."""
+    m0, m1, m2 = point_normals[i, 0], point_normals[i, 1], point_normals[i, 2]
+    rl = radii[l]
+    total = 0.0
+    for p in range(points.shape[1]):
+        x0, x1, x2 = points[i, p, 0], points[i, p, 1], points[i, p, 2]
+        r0 = x0 - centroids[l, 0]
+        r1 = x1 - centroids[l, 1]
+        r2 = x2 - centroids[l, 2]
+        d2 = r0 * r0 + r1 * r1 + r2 * r2
+        if d2 >= (far * rl) ** 2:
+            inv = 1.0 / math.sqrt(d2)
+            total += weights[p] * areas[l] * inv * inv * inv * (r0 * m0 + r1 * m1 + r2 * m2)
+        elif d2 < (near * rl) ** 2:
+            _, g0, g1, g2, _ = triangle_integrals(x0, x1, x2, verts[l], normals[l])
+            total += weights[p] * (g0 * m0 + g1 * m1 + g2 * m2)
+        else:
+            q = pts_mid[l]
+            wq = w_mid
+            if d2 < (mid * rl) ** 2:
+                q = pts_near[l]
+                wq = w_near
+            acc = 0.0
+            for t in range(q.shape[0]):
+                s0, s1, s2 = x0 - q[t, 0], x1 - q[t, 1], x2 - q[t, 2]
+                iv = 1.0 / math.sqrt(s0 * s0 + s1 * s1 + s2 * s2)
+                acc += wq[t] * iv * iv * iv * (s0 * m0 + s1 * m1 + s2 * m2)
+            total += weights[p] * areas[l] * acc
+    return total
+
+
 @njit(parallel=True, cache=True, error_model="numpy")
 def assemble_normal_field(out, points, weights, point_normals, verts, normals, centroids, radii,
                           areas, pts_mid, w_mid, pts_near, w_near, near, mid, far):
-    """out[i, l] = sum_q weights_q n_i . int_Tl (x_iq - y)/|x_iq - y|^3 dA_y (dimensionless):
-    the normal field of a unit charge density on panel l, averaged over test points x_iq
-    (m, q, 3) with unit normal n_i. A point on a panel gets the principal value (its own panel
-    contributes no normal field). Rules by distance in panel radii as in evaluate_points."""
-    m = points.shape[0]
-    n = areas.shape[0]
-    for i in prange(m):
-        m0, m1, m2 = point_normals[i, 0], point_normals[i, 1], point_normals[i, 2]
-        for l in range(n):
-            out[i, l] = 0.0
-        for p in range(points.shape[1]):
-            x0, x1, x2 = points[i, p, 0], points[i, p, 1], points[i, p, 2]
-            wp = weights[p]
-            for l in range(n):
-                r0 = x0 - centroids[l, 0]
-                r1 = x1 - centroids[l, 1]
-                r2 = x2 - centroids[l, 2]
-                d2 = r0 * r0 + r1 * r1 + r2 * r2
-                rl = radii[l]
-                if d2 >= (far * rl) ** 2:
-                    inv = 1.0 / math.sqrt(d2)
-                    out[i, l] += wp * areas[l] * inv * inv * inv * (r0 * m0 + r1 * m1 + r2 * m2)
-                elif d2 < (near * rl) ** 2:
-                    _, g0, g1, g2, _ = triangle_integrals(x0, x1, x2, verts[l], normals[l])
-                    out[i, l] += wp * (g0 * m0 + g1 * m1 + g2 * m2)
-                else:
-                    q = pts_mid[l]
-                    wq = w_mid
-                    if d2 < (mid * rl) ** 2:
-                        q = pts_near[l]
-                        wq = w_near
-                    acc = 0.0
-                    for t in range(q.shape[0]):
-                        s0, s1, s2 = x0 - q[t, 0], x1 - q[t, 1], x2 - q[t, 2]
-                        iv = 1.0 / math.sqrt(s0 * s0 + s1 * s1 + s2 * s2)
-                        acc += wq[t] * iv * iv * iv * (s0 * m0 + s1 * m1 + s2 * m2)
-                    out[i, l] += wp * areas[l] * acc
+    """out[i, l] = normal_field_entry(i, l, ...) for every test panel i and source panel l."""
+    for i in prange(points.shape[0]):
+        for l in range(areas.shape[0]):
+            out[i, l] = normal_field_entry(i, l, points, weights, point_normals, verts, normals,
+                                           centroids, radii, areas, pts_mid, w_mid, pts_near,
+                                           w_near, near, mid, far)

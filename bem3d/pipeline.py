@@ -47,12 +47,13 @@ def _gib(n_bytes):
     return f"{n_bytes / 2**30:.2f} GiB" if n_bytes >= 2**30 else f"{n_bytes / 2**20:.0f} MiB"
 
 
-def choose_backend(n_panels, backend, solver, available):
+def choose_backend(n_panels, backend, solver, available, dense_need=None):
     """(backend, solver) for a run of n_panels with `available` bytes of memory.
 
     backend 'auto' takes the compressed backend above COMPRESSED_FROM panels, or whenever the
-    dense matrix would need more than MEMORY_FRACTION of the available memory. solver 'auto' is
-    Cholesky up to DIRECT_LIMIT panels on the dense backend, else CG."""
+    dense matrix would need more than MEMORY_FRACTION of the available memory (dense_need
+    bytes if given, else plan_memory's). solver 'auto' is Cholesky up to DIRECT_LIMIT panels
+    on the dense backend, else CG."""
     if backend not in BACKENDS:
         raise ModelError(f"unknown backend '{backend}' (use {', '.join(BACKENDS)})")
     if solver not in ("auto", "direct", "cg"):
@@ -60,7 +61,9 @@ def choose_backend(n_panels, backend, solver, available):
     dense_solver = solver if solver != "auto" else (
         "direct" if n_panels <= DIRECT_LIMIT else "cg")
     if backend == "auto":
-        dense_fits = plan_memory(n_panels, dense_solver) <= MEMORY_FRACTION * available
+        if dense_need is None:
+            dense_need = plan_memory(n_panels, dense_solver)
+        dense_fits = dense_need <= MEMORY_FRACTION * available
         backend = "dense" if n_panels <= COMPRESSED_FROM and dense_fits else "compressed"
     if backend == "dense":
         return backend, dense_solver
@@ -101,20 +104,8 @@ def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto"
     if ground_z is not None:
         check_ground_plane(panels, ground_z)
     if dielectrics:
-        if backend == "compressed":
-            raise ModelError("dielectric bodies need the dense backend (--backend dense)")
-        from .dielectric import plan_dielectrics, solve_system
-
-        system = plan_dielectrics(panels, dielectrics, eps_r, ground_z)
-        have = available_memory()
-        _check_memory(f"{len(panels)} conductor and {len(system.interfaces)} interface panels",
-                      system.nbytes, "the dense dielectric system", have, "coarsen the meshes")
-        _log(progress, f"solving {len(panels)} conductor panels with "
-                       f"{len(dielectrics)} dielectric bodies (dense LU): "
-                       f"{_gib(system.nbytes)} of {_gib(have)} available ...")
-        t0 = time.perf_counter()
-        result = solve_system(system, volts, rules)
-        result.timings_s.update({"assembly": 0.0, "solve": time.perf_counter() - t0})
+        result = _solve_dielectric(panels, volts, eps_r, rules, tol, ground_z, dielectrics,
+                                   backend, compression, progress)
         result.solver.update({"floating": list(floating),
                               "dielectrics": {b.name: b.eps_r for b in dielectrics}})
         return reduce_floating(result, floating) if floating else result
@@ -243,6 +234,42 @@ def _solve_compressed(panels, rhs, eps_r, rules, tol, compression, ground_z, hav
     if store is not None:
         settings["cache_file"] = str(store.path(key))
     return report, settings, timings
+
+
+def _solve_dielectric(panels, volts, eps_r, rules, tol, ground_z, dielectrics, backend,
+                      compression, progress):
+    from .dielectric import plan_dielectrics, solve_system
+
+    system = plan_dielectrics(panels, dielectrics, eps_r, ground_z)
+    have = available_memory()
+    what = f"{len(panels)} conductor and {len(system.interfaces)} interface panels"
+    backend, _ = choose_backend(system.n_panels, backend, "auto", have,
+                                dense_need=system.nbytes)
+    if backend == "dense":
+        _check_memory(what, system.nbytes, "the dense dielectric system", have,
+                      "use --backend compressed or coarsen the meshes")
+        _log(progress, f"solving {len(panels)} conductor panels with "
+                       f"{len(dielectrics)} dielectric bodies (dense LU): "
+                       f"{_gib(system.nbytes)} of {_gib(have)} available ...")
+        t0 = time.perf_counter()
+        result = solve_system(system, volts, rules)
+        result.timings_s.update({"assembly": 0.0, "solve": time.perf_counter() - t0})
+        return result
+    from .dielectric_compressed import DielectricPlan, solve_planned
+
+    plan = DielectricPlan(system, rules, compression or Compression(), SUBDOMAIN_SIZE)
+    work = plan.work_bytes(panels.n_conductors)
+    _check_memory(what, plan.operator_bytes() + work, "the compressed dielectric system", have,
+                  "coarsen the meshes or loosen the compression tolerance")
+    _log(progress, f"solving {len(panels)} conductor panels with {len(dielectrics)} dielectric "
+                   f"bodies (compressed, gmres): ~{_gib(plan.operator_bytes() + work)} of "
+                   f"{_gib(have)} available ...")
+    result = solve_planned(plan, volts, tol, MAX_ITERATIONS, MEMORY_FRACTION * have - work)
+    if not result.solver["converged"]:
+        _log(progress, f"warning: GMRES stopped after {result.solver['iterations']} iterations "
+                       f"at relative residual {result.solver['relative_residual']:.1e} (asked "
+                       f"for {tol:.1e})")
+    return result
 
 
 def read_dielectrics(model):

@@ -83,6 +83,25 @@ class ClusterTree:
         return cls(*_bisect(np.ascontiguousarray(centroids), vertices.min(axis=1),
                             vertices.max(axis=1), int(leaf_size)))
 
+    @classmethod
+    def join(cls, first, second):
+        """One tree whose root's children are `first` (panels 0..n1-1) and `second` (the next
+        n2 panels): keeps two panel sets apart in the block structure."""
+        n1, c1 = len(first.perm), len(first.start)
+
+        def shifted(t, clusters, panels):
+            child = np.where(t.child < 0, -1, t.child + clusters)
+            return t.perm + panels, t.start + panels, t.end + panels, child
+
+        p1, s1, e1, ch1 = shifted(first, 1, 0)
+        p2, s2, e2, ch2 = shifted(second, 1 + c1, n1)
+        n = n1 + len(second.perm)
+        return cls(np.concatenate([p1, p2]), np.concatenate([[0], s1, s2]),
+                   np.concatenate([[n], e1, e2]),
+                   np.concatenate([[[1, 1 + c1]], ch1, ch2]),
+                   np.concatenate([np.minimum(first.lo[:1], second.lo[:1]), first.lo, second.lo]),
+                   np.concatenate([np.maximum(first.hi[:1], second.hi[:1]), first.hi, second.hi]))
+
     @property
     def sizes(self):
         return self.end - self.start
@@ -102,50 +121,51 @@ class ClusterTree:
 
 
 @njit(cache=True)
-def _admissible(lo, hi, t, s, eta):
+def _admissible(lo_t, hi_t, t, lo_s, hi_s, s, eta):
     d2 = 0.0
     dt = 0.0
     ds = 0.0
     for k in range(3):
-        gap = max(0.0, lo[s, k] - hi[t, k], lo[t, k] - hi[s, k])
+        gap = max(0.0, lo_s[s, k] - hi_t[t, k], lo_t[t, k] - hi_s[s, k])
         d2 += gap * gap
-        dt += (hi[t, k] - lo[t, k]) ** 2
-        ds += (hi[s, k] - lo[s, k]) ** 2
+        dt += (hi_t[t, k] - lo_t[t, k]) ** 2
+        ds += (hi_s[s, k] - lo_s[s, k]) ** 2
     return min(dt, ds) <= eta * eta * d2
 
 
 @njit(cache=True)
-def _block_tree(child, lo, hi, eta):
-    # Only blocks on or below the diagonal of the symmetric matrix are listed: the pair (t, s)
-    # with t != s stands for itself and its transpose (s, t).
+def _block_tree(child_t, lo_t, hi_t, child_s, lo_s, hi_s, eta, symmetric):
+    # Rows from tree t, columns from tree s. For a symmetric matrix (one tree) only blocks on
+    # or below the diagonal are listed: the pair (t, s) with t != s stands for itself and its
+    # transpose (s, t).
     near = []
     far = []
     stack = [(0, 0)]
     while len(stack) > 0:
         t, s = stack.pop()
-        t_leaf, s_leaf = child[t, 0] < 0, child[s, 0] < 0
-        if t == s:
+        t_leaf, s_leaf = child_t[t, 0] < 0, child_s[s, 0] < 0
+        if symmetric and t == s:
             if t_leaf:
                 near.append((t, s))
             else:
-                a, b = child[t, 0], child[t, 1]
+                a, b = child_t[t, 0], child_t[t, 1]
                 stack.append((a, a))
                 stack.append((b, a))
                 stack.append((b, b))
-        elif _admissible(lo, hi, t, s, eta):
+        elif _admissible(lo_t, hi_t, t, lo_s, hi_s, s, eta):
             far.append((t, s))
         elif t_leaf and s_leaf:
             near.append((t, s))
         elif t_leaf:
-            stack.append((t, child[s, 0]))
-            stack.append((t, child[s, 1]))
+            stack.append((t, child_s[s, 0]))
+            stack.append((t, child_s[s, 1]))
         elif s_leaf:
-            stack.append((child[t, 0], s))
-            stack.append((child[t, 1], s))
+            stack.append((child_t[t, 0], s))
+            stack.append((child_t[t, 1], s))
         else:
             for i in range(2):
                 for j in range(2):
-                    stack.append((child[t, i], child[s, j]))
+                    stack.append((child_t[t, i], child_s[s, j]))
     near_arr = np.empty((len(near), 2), np.int64)
     for i in range(len(near)):
         near_arr[i, 0], near_arr[i, 1] = near[i]
@@ -155,9 +175,13 @@ def _block_tree(child, lo, hi, eta):
     return near_arr, far_arr
 
 
-def block_partition(tree, eta=1.5):
+def block_partition(tree, eta=1.5, columns=None):
     """Near (inadmissible leaf) and far (admissible) blocks as (k, 2) arrays of cluster pairs.
 
-    Only pairs (t, s) on or below the diagonal are listed; (t, s) with t != s also stands for
-    its transpose. eta: admissibility parameter of min(diam) <= eta * dist."""
-    return _block_tree(tree.child, tree.lo, tree.hi, float(eta))
+    With one tree (the symmetric matrix) only pairs (t, s) on or below the diagonal are
+    listed; (t, s) with t != s also stands for its transpose. columns: a second ClusterTree
+    for the columns of a general matrix; every block is then listed.
+    eta: admissibility parameter of min(diam) <= eta * dist."""
+    cols = tree if columns is None else columns
+    return _block_tree(tree.child, tree.lo, tree.hi, cols.child, cols.lo, cols.hi, float(eta),
+                       columns is None)

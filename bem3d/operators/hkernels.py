@@ -1,20 +1,67 @@
 """Numba kernels of the hierarchical-matrix backend: block filling, ACA, products, extraction.
 
-Every matrix entry comes from kernels.panel_pair_integral (the dense backend's quadrature), on
-panels renumbered so that clusters are contiguous; a block is given by (row0, rows, col0, cols).
-Low-rank blocks are stored as U (rows, rank) and V (cols, rank), row-major, block ~ U V^T.
+Every matrix entry comes from the dense backend's quadrature: kernels.panel_pair_integral for
+the single-layer operator, kernels.normal_field_entry for the normal field at dielectric
+interfaces; panels are renumbered so that clusters are contiguous and a block is given by
+(row0, rows, col0, cols). Low-rank blocks are stored as U (rows, rank) and V (cols, rank),
+row-major, block ~ U V^T.
 """
 
 import math
 
 import numpy as np
 from numba import njit, prange
+from numba.extending import overload
 
-from ..kernels import _pair, panel_pair_integral
+from ..kernels import _pair, normal_field_entry, panel_pair_integral
+
+#: Length of the single-layer entry tuple (hmatrix.entry_arguments); the normal-field tuple
+#: (hfield.field_arguments) is shorter, which is how _entries tells them apart.
+SINGLE_LAYER_ARGUMENTS = 24
+
+
+def _entries(i0, di, j0, dj, count, out, a):
+    """out[t] = entry (i0 + t di, j0 + t dj) of the operator that the argument tuple a
+    describes, t < count: compiled to _single_layer_entries or _field_entries."""
+    raise NotImplementedError("only callable from compiled code")
+
+
+@overload(_entries, jit_options={"cache": True}, inline="always")
+def _entries_by_kind(i0, di, j0, dj, count, out, a):
+    # chosen once per argument-tuple type at compile time, so the ACA, recompression and
+    # block filling below serve both operators
+    if len(a) == SINGLE_LAYER_ARGUMENTS:
+        def single_layer(i0, di, j0, dj, count, out, a):
+            _single_layer_entries(i0, di, j0, dj, count, out, a)
+        return single_layer
+
+    def field(i0, di, j0, dj, count, out, a):
+        _field_entries(i0, di, j0, dj, count, out, a)
+    return field
 
 
 @njit(cache=True)
-def _entries(i0, di, j0, dj, count, out, a):
+def _field_entries(i0, di, j0, dj, count, out, a):
+    # out[t] = normal field of source panel j0 + t dj tested over interface panel i0 + t di,
+    # as dielectric._interface_rows computes it, less that of the source's mirror image when
+    # the flag (last) is set
+    (points, weights, point_normals, verts, normals, centroids, radii, areas, pts_mid, w_mid,
+     pts_near, w_near, near, mid, far, i_verts, i_normals, i_centroids, i_radii, i_areas,
+     i_pts_mid, i_pts_near, image) = a
+    for t in range(count):
+        i = i0 + t * di
+        j = j0 + t * dj
+        v = normal_field_entry(i, j, points, weights, point_normals, verts, normals, centroids,
+                               radii, areas, pts_mid, w_mid, pts_near, w_near, near, mid, far)
+        if image:
+            v -= normal_field_entry(i, j, points, weights, point_normals, i_verts, i_normals,
+                                    i_centroids, i_radii, i_areas, i_pts_mid, w_mid, i_pts_near,
+                                    w_near, near, mid, far)
+        out[t] = v
+
+
+@njit(cache=True)
+def _single_layer_entries(i0, di, j0, dj, count, out, a):
     # out[t] = Galerkin integral of panels i0 + t di and j0 + t dj (m^3), t < count, exactly as
     # the dense backend computes it (a row of a block for di = 0, a column for dj = 0).
     # a is entry_arguments(): operators.kernel_arguments, then the image panels' corners,
@@ -57,15 +104,15 @@ def _entries(i0, di, j0, dj, count, out, a):
 
 
 @njit(parallel=True, cache=True)
-def fill_dense_blocks(blocks, offsets, data, kargs):
-    """Write block b (row-major) at data[offsets[b]:] for every row of blocks (k, 4) (m^3).
+def fill_dense_blocks(blocks, offsets, data, kargs, symmetric):
+    """Write block b (row-major) at data[offsets[b]:] for every row of blocks (k, 4).
 
-    A block on the diagonal (row0 == col0) is filled on and below its diagonal and mirrored,
-    so it is exactly symmetric, as the dense matrix is."""
+    In a symmetric operator a block on the diagonal (row0 == col0) is filled on and below its
+    diagonal and mirrored, so it is exactly symmetric, as the dense matrix is."""
     for b in prange(blocks.shape[0]):
         r0, m, c0, n = blocks[b, 0], blocks[b, 1], blocks[b, 2], blocks[b, 3]
         off = offsets[b]
-        diagonal = r0 == c0
+        diagonal = symmetric and r0 == c0
         for i in range(m):
             _entries(r0 + i, 0, c0, 1, i + 1 if diagonal else n, data[off + i * n:], kargs)
         if diagonal:
@@ -312,9 +359,10 @@ def gather_blocks(blocks, slots, ranks, scratch, offsets, out):
 
 
 @njit(cache=True, fastmath=True)
-def _dense_product(a, off, r0, m, c0, n, x, y):
-    # y[:, rows] += A x[:, cols], and for an off-diagonal block also y[:, cols] += A^T x[:, rows];
-    # x, y are (columns, panels): each row of A is read from memory once for all columns
+def _dense_product(a, off, r0, m, c0, n, x, y, symmetric):
+    # y[:, rows] += A x[:, cols], and for an off-diagonal block of a symmetric operator also
+    # y[:, cols] += A^T x[:, rows]; x, y are (columns, panels): each row of A is read from
+    # memory once for all columns
     for i in range(m):
         row = a[off + i * n:off + (i + 1) * n]
         for c in range(x.shape[0]):
@@ -323,7 +371,7 @@ def _dense_product(a, off, r0, m, c0, n, x, y):
             for j in range(n):
                 acc += row[j] * xs[j]
             y[c, r0 + i] += acc
-            if r0 != c0:
+            if symmetric and r0 != c0:
                 ys = y[c, c0:c0 + n]
                 xi = x[c, r0 + i]
                 for j in range(n):
@@ -331,9 +379,10 @@ def _dense_product(a, off, r0, m, c0, n, x, y):
 
 
 @njit(cache=True, fastmath=True)
-def _lowrank_product(f, off, r, r0, m, c0, n, x, y, t):
-    # y[:, rows] += U (V^T x[:, cols]) and y[:, cols] += V (U^T x[:, rows]); t is
-    # (2, columns, rank) scratch; each factor row is read from memory once for all columns
+def _lowrank_product(f, off, r, r0, m, c0, n, x, y, t, symmetric):
+    # y[:, rows] += U (V^T x[:, cols]), and in a symmetric operator y[:, cols] += V (U^T
+    # x[:, rows]); t is (2, columns, rank) scratch; each factor row is read from memory once
+    # for all columns
     nc = x.shape[0]
     u = f[off:off + m * r]
     v = f[off + m * r:off + (m + n) * r]
@@ -353,6 +402,8 @@ def _lowrank_product(f, off, r, r0, m, c0, n, x, y, t):
                 t[1, c, l] += ui[l] * xi
                 acc += ui[l] * t[0, c, l]
             y[c, r0 + i] += acc
+    if not symmetric:
+        return
     for j in range(n):
         vj = v[j * r:(j + 1) * r]
         for c in range(nc):
@@ -364,22 +415,24 @@ def _lowrank_product(f, off, r, r0, m, c0, n, x, y, t):
 
 @njit(parallel=True, cache=True)
 def hmatrix_product(x, parts, dense_blocks, dense_offsets, dense_data, lr_blocks, lr_offsets,
-                    lr_ranks, lr_data, dense_groups, lr_groups, max_rank):
-    """parts[g] = the share of thread group g of (P x^T)^T, for x (nr, n) in cluster numbering.
+                    lr_ranks, lr_data, dense_groups, lr_groups, max_rank, symmetric):
+    """parts[g] = the share of thread group g of (A x^T)^T, for x (nr, columns) in cluster
+    numbering; parts (groups, nr, rows).
 
     Group g takes dense blocks dense_groups[g]:dense_groups[g+1] and low-rank blocks
-    lr_groups[g]:lr_groups[g+1]; the caller sums parts. Each stored block off the diagonal
-    also acts as its transpose (the matrix is symmetric)."""
+    lr_groups[g]:lr_groups[g+1]; the caller sums parts. In a symmetric operator each stored
+    block off the diagonal also acts as its transpose."""
     for g in prange(parts.shape[0]):
         y = parts[g]
         y[:] = 0.0
         t = np.empty((2, x.shape[0], max(max_rank, 1)))
         for b in range(dense_groups[g], dense_groups[g + 1]):
             _dense_product(dense_data, dense_offsets[b], dense_blocks[b, 0], dense_blocks[b, 1],
-                           dense_blocks[b, 2], dense_blocks[b, 3], x, y)
+                           dense_blocks[b, 2], dense_blocks[b, 3], x, y, symmetric)
         for b in range(lr_groups[g], lr_groups[g + 1]):
             _lowrank_product(lr_data, lr_offsets[b], lr_ranks[b], lr_blocks[b, 0],
-                             lr_blocks[b, 1], lr_blocks[b, 2], lr_blocks[b, 3], x, y, t)
+                             lr_blocks[b, 1], lr_blocks[b, 2], lr_blocks[b, 3], x, y, t,
+                             symmetric)
 
 
 @njit(parallel=True, cache=True)

@@ -73,11 +73,75 @@ def entry_arguments(panels, rules, ground_z=None):
                    ground_z is not None)
 
 
-def _ranges(tree, pairs):
-    # (row0, rows, col0, cols) of cluster pairs, in cluster numbering
+def _ranges(tree, pairs, columns=None):
+    # (row0, rows, col0, cols) of cluster pairs, in cluster numbering (columns: the column
+    # tree when it is not the row tree)
+    cols = tree if columns is None else columns
     t, s = pairs[:, 0], pairs[:, 1]
     return np.ascontiguousarray(np.stack([tree.start[t], tree.end[t] - tree.start[t],
-                                          tree.start[s], tree.end[s] - tree.start[s]], axis=1))
+                                          cols.start[s], cols.end[s] - cols.start[s]], axis=1))
+
+
+def split_blocks(tree, compression, columns=None):
+    """(near, far) blocks (k, 4) of the partition, shuffled (which balances the threads'
+    work in every parallel loop); admissible blocks too small to gain from ACA join near."""
+    near, far = block_partition(tree, compression.eta, columns)
+    rng = np.random.default_rng(0)
+    near = _ranges(tree, near[rng.permutation(len(near))], columns)
+    far = _ranges(tree, far[rng.permutation(len(far))], columns)
+    small = _room(far, compression.max_rank) < DENSE_BELOW
+    return np.concatenate((near, far[small])), far[~small]
+
+
+def estimate_lowrank(far, compression, kargs):
+    """Estimated numbers of the low-rank factors of the blocks far: the ranks of a sample of
+    blocks of each size class (log2 of rows*cols) stand for the class."""
+    if len(far) == 0:
+        return 0
+    size_class = np.log2(far[:, 1] * far[:, 3]).astype(np.int64)
+    rng = np.random.default_rng(1)
+    pick = np.unique(np.concatenate([
+        rng.choice(np.flatnonzero(size_class == c),
+                   min(max(2, RANK_SAMPLES * np.sum(size_class == c) // len(far)),
+                       np.sum(size_class == c)), replace=False)
+        for c in np.unique(size_class)]))
+    ranks, _ = _compress(far[pick], compression, kargs)
+    per_number = np.zeros(size_class.max() + 1)
+    for c in np.unique(size_class):
+        sample = size_class[pick] == c
+        b = far[pick][sample]
+        store = np.where(ranks[sample] < 0, b[:, 1] * b[:, 3],
+                         ranks[sample] * (b[:, 1] + b[:, 3]))
+        per_number[c] = store.sum() / np.sum(b[:, 1] * b[:, 3])
+    return int(np.sum(per_number[size_class] * far[:, 1] * far[:, 3]))
+
+
+def assemble_blocks(near, far, compression, kargs, dense_numbers, memory_limit, symmetric):
+    """Compress the admissible blocks far, fill the near ones: the block arrays of an
+    operator (dense_blocks, dense_offsets, dense_data, lr_blocks, lr_offsets, lr_ranks,
+    lr_data). memory_limit (bytes) is checked as the low-rank factors come in, so a run that
+    outgrows its estimate stops cleanly instead of being killed."""
+    item = STORAGE().itemsize
+    budget = None if memory_limit is None else memory_limit - item * dense_numbers
+    ranks, pieces = _compress(far, compression, kargs, budget)
+    low = ranks > 0
+    lr_blocks = far[low]
+    lr_ranks = ranks[low]
+    lr_data = _concatenate(pieces)
+    # blocks that did not compress below the break-even rank join the dense leaves
+    dense_blocks = np.concatenate((near, far[ranks < 0]))
+    dense_sizes = dense_blocks[:, 1] * dense_blocks[:, 3]
+    need = item * (lr_data.size + dense_sizes.sum())
+    if memory_limit is not None and need > memory_limit:
+        raise ResourceError(f"the compressed operator needs {need / 2**30:.1f} GiB, more "
+                            f"than the {memory_limit / 2**30:.1f} GiB allowed")
+    dense_offsets = np.concatenate(([0], np.cumsum(dense_sizes))).astype(np.int64)
+    dense_data = np.empty(dense_offsets[-1], STORAGE)
+    hkernels.fill_dense_blocks(dense_blocks, dense_offsets, dense_data, kargs, symmetric)
+    lr_offsets = np.concatenate(
+        ([0], np.cumsum(lr_ranks * (lr_blocks[:, 1] + lr_blocks[:, 3])))).astype(np.int64)
+    return dict(dense_blocks=dense_blocks, dense_offsets=dense_offsets, dense_data=dense_data,
+                lr_blocks=lr_blocks, lr_offsets=lr_offsets, lr_ranks=lr_ranks, lr_data=lr_data)
 
 
 def _room(blocks, max_rank):
@@ -142,46 +206,27 @@ class HMatrixPlan:
     """The block structure of a compressed operator and its memory, known before assembly.
 
     panels: Panels (m). Builds the cluster tree and block partition, renumbers the panels and
-    measures the ranks of a sample of admissible blocks to estimate the low-rank storage."""
+    measures the ranks of a sample of admissible blocks to estimate the low-rank storage.
+    tree: a ClusterTree of the panels to use instead of bisecting them afresh. leading: keep
+    only the blocks with rows or columns among the first `leading` panels of the cluster
+    numbering; the operator is then right in those rows and columns only (the others lack
+    the blocks among themselves)."""
 
-    def __init__(self, panels, rules=PairRules(), compression=Compression(), ground_z=None):
+    def __init__(self, panels, rules=PairRules(), compression=Compression(), ground_z=None,
+                 tree=None, leading=None):
         self.compression, self.rules = compression, rules
-        self.tree = ClusterTree.build(panels.vertices, panels.centroids, compression.leaf_size)
-        near, far = block_partition(self.tree, compression.eta)
-        rng = np.random.default_rng(0)
-        # a shuffled block order balances the threads' work in every parallel loop
-        near = _ranges(self.tree, near[rng.permutation(len(near))])
-        far = _ranges(self.tree, far[rng.permutation(len(far))])
-        small = _room(far, compression.max_rank) < DENSE_BELOW
-        self.near = np.concatenate((near, far[small]))
-        self.far = far[~small]
+        self.tree = tree if tree is not None else ClusterTree.build(
+            panels.vertices, panels.centroids, compression.leaf_size)
+        self.near, self.far = split_blocks(self.tree, compression)
+        if leading is not None:
+            self.near, self.far = (b[(b[:, 0] < leading) | (b[:, 2] < leading)]
+                                   for b in (self.near, self.far))
         self.n = len(panels)
         self.panels = Panels(panels.vertices[self.tree.perm], panels.owner[self.tree.perm],
                              panels.names)
         self.kargs = entry_arguments(self.panels, rules, ground_z)
         self.dense_numbers = int(np.sum(self.near[:, 1] * self.near[:, 3]))
-        self.lowrank_numbers = self._estimate_lowrank()
-
-    def _estimate_lowrank(self):
-        # ranks of a sample of blocks of each size class (log2 of rows*cols) stand for the class
-        if len(self.far) == 0:
-            return 0
-        size_class = np.log2(self.far[:, 1] * self.far[:, 3]).astype(np.int64)
-        rng = np.random.default_rng(1)
-        pick = np.unique(np.concatenate([
-            rng.choice(np.flatnonzero(size_class == c),
-                       min(max(2, RANK_SAMPLES * np.sum(size_class == c) // len(self.far)),
-                           np.sum(size_class == c)), replace=False)
-            for c in np.unique(size_class)]))
-        ranks, _ = _compress(self.far[pick], self.compression, self.kargs)
-        per_number = np.zeros(size_class.max() + 1)
-        for c in np.unique(size_class):
-            sample = size_class[pick] == c
-            b = self.far[pick][sample]
-            store = np.where(ranks[sample] < 0, b[:, 1] * b[:, 3],
-                             ranks[sample] * (b[:, 1] + b[:, 3]))
-            per_number[c] = store.sum() / np.sum(b[:, 1] * b[:, 3])
-        return int(np.sum(per_number[size_class] * self.far[:, 1] * self.far[:, 3]))
+        self.lowrank_numbers = estimate_lowrank(self.far, compression, self.kargs)
 
     @property
     def dense_bytes(self):
@@ -207,7 +252,43 @@ class HMatrixPlan:
         return int(kargs + schwarz + vectors)
 
 
-class HMatrixOperator(LinearOperator):
+class BlockProducts:
+    """Products with stored blocks (dense_blocks ... lr_data attributes), shared by the
+    symmetric single-layer operator and the general normal-field one."""
+
+    def _split_work(self):
+        # thread groups of about equal cost, and the rank the product's scratch must hold
+        threads = numba.get_num_threads()
+        self.dense_groups = _groups(self.dense_blocks[:, 1] * self.dense_blocks[:, 3], threads)
+        self.lr_groups = _groups(self.lr_ranks * (self.lr_blocks[:, 1] + self.lr_blocks[:, 3]),
+                                 threads)
+        self.max_rank = int(self.lr_ranks.max(initial=0))
+
+    def _blocks_times(self, x, row_perm, col_perm, symmetric):
+        # x (columns of the operator, k) in the caller's order; row_perm, col_perm: caller
+        # index of each cluster-numbered row and column
+        # the kernels take (columns, panels) so that each column is contiguous
+        xp = np.ascontiguousarray(x[col_perm].T)
+        parts = np.empty((len(self.dense_groups) - 1, x.shape[1], len(row_perm)))
+        hkernels.hmatrix_product(xp, parts, self.dense_blocks, self.dense_offsets,
+                                 self.dense_data, self.lr_blocks, self.lr_offsets, self.lr_ranks,
+                                 self.lr_data, self.dense_groups, self.lr_groups, self.max_rank,
+                                 symmetric)
+        y = np.empty((len(row_perm), x.shape[1]))
+        y[row_perm] = parts.sum(axis=0).T
+        return y
+
+    @property
+    def nbytes(self):
+        return self.dense_data.nbytes + self.lr_data.nbytes
+
+    @property
+    def compression_ratio(self):
+        """Stored numbers over the rows * columns of the dense matrix."""
+        return (self.dense_data.size + self.lr_data.size) / float(np.prod(self.shape))
+
+
+class HMatrixOperator(BlockProducts, LinearOperator):
     """The hierarchical-matrix approximation of P (V m^2 per C/m^2) as a LinearOperator.
 
     Built by assemble() or from the plain arrays of arrays() (the cache). Products take and
@@ -224,11 +305,7 @@ class HMatrixOperator(LinearOperator):
                                 self.tree_lo, self.tree_hi)
         self.scale = 1.0 / (4.0 * math.pi * EPS0 * eps_r)
         n = len(self.perm)
-        threads = numba.get_num_threads()
-        self.dense_groups = _groups(self.dense_blocks[:, 1] * self.dense_blocks[:, 3], threads)
-        self.lr_groups = _groups(self.lr_ranks * (self.lr_blocks[:, 1] + self.lr_blocks[:, 3]),
-                                 threads)
-        self.max_rank = int(self.lr_ranks.max(initial=0))
+        self._split_work()
         super().__init__(np.float64, (n, n))
 
     @classmethod
@@ -236,53 +313,18 @@ class HMatrixOperator(LinearOperator):
         """Compress the admissible blocks, fill the others. memory_limit (bytes) for the
         operator is checked as the low-rank factors come in, so a run that outgrows its
         estimate stops cleanly instead of being killed."""
-        budget = None if memory_limit is None else memory_limit - plan.dense_bytes
-        ranks, pieces = _compress(plan.far, plan.compression, plan.kargs, budget)
-        low = ranks > 0
-        lr_blocks = plan.far[low]
-        lr_ranks = ranks[low]
-        lr_data = _concatenate(pieces)
-        # blocks that did not compress below the break-even rank join the dense leaves
-        dense_blocks = np.concatenate((plan.near, plan.far[ranks < 0]))
-        dense_sizes = dense_blocks[:, 1] * dense_blocks[:, 3]
-        need = lr_data.nbytes + STORAGE().itemsize * dense_sizes.sum()
-        if memory_limit is not None and need > memory_limit:
-            raise ResourceError(f"the compressed operator needs {need / 2**30:.1f} GiB, more "
-                                f"than the {memory_limit / 2**30:.1f} GiB allowed")
-        dense_offsets = np.concatenate(([0], np.cumsum(dense_sizes))).astype(np.int64)
-        dense_data = np.empty(dense_offsets[-1], STORAGE)
-        hkernels.fill_dense_blocks(dense_blocks, dense_offsets, dense_data, plan.kargs)
-        lr_offsets = np.concatenate(
-            ([0], np.cumsum(lr_ranks * (lr_blocks[:, 1] + lr_blocks[:, 3])))).astype(np.int64)
+        blocks = assemble_blocks(plan.near, plan.far, plan.compression, plan.kargs,
+                                 plan.dense_numbers, memory_limit, True)
         t = plan.tree
         return cls(dict(perm=t.perm, tree_start=t.start, tree_end=t.end, tree_child=t.child,
-                        tree_lo=t.lo, tree_hi=t.hi, dense_blocks=dense_blocks,
-                        dense_offsets=dense_offsets, dense_data=dense_data, lr_blocks=lr_blocks,
-                        lr_offsets=lr_offsets, lr_ranks=lr_ranks, lr_data=lr_data), eps_r)
+                        tree_lo=t.lo, tree_hi=t.hi, **blocks), eps_r)
 
     def arrays(self):
         """The operator as plain arrays (integrals in m^3, before the 1/(4 pi eps) factor)."""
         return {name: getattr(self, name) for name in self.ARRAY_NAMES}
 
-    @property
-    def nbytes(self):
-        return self.dense_data.nbytes + self.lr_data.nbytes
-
-    @property
-    def compression_ratio(self):
-        """Stored numbers over the n^2 of the dense matrix."""
-        return (self.dense_data.size + self.lr_data.size) / float(self.shape[0]) ** 2
-
     def _product(self, x):
-        # the kernels take (columns, panels) so that each column is contiguous
-        xp = np.ascontiguousarray(x[self.perm].T)
-        parts = np.empty((len(self.dense_groups) - 1,) + xp.shape)
-        hkernels.hmatrix_product(xp, parts, self.dense_blocks, self.dense_offsets,
-                                 self.dense_data, self.lr_blocks, self.lr_offsets, self.lr_ranks,
-                                 self.lr_data, self.dense_groups, self.lr_groups, self.max_rank)
-        y = np.empty(x.shape)
-        y[self.perm] = parts.sum(axis=0).T
-        return self.scale * y
+        return self.scale * self._blocks_times(x, self.perm, self.perm, True)
 
     def _matvec(self, x):
         return self._product(np.reshape(x, (-1, 1)))[:, 0]
@@ -294,21 +336,35 @@ class HMatrixOperator(LinearOperator):
         return self
 
     def diagonal(self):
-        """The diagonal of P, in the caller's panel order."""
-        d = np.empty(self.shape[0])
+        """The diagonal of P, in the caller's panel order (0 where a plan's `leading` left
+        the diagonal block out)."""
+        d = np.zeros(self.shape[0])
         for (r0, m, c0, _), off in zip(self.dense_blocks, self.dense_offsets):
             if r0 == c0:
                 d[self.perm[r0:r0 + m]] = self.dense_data[off:off + m * m:m + 1]
         return self.scale * d
 
-    def schwarz_parts(self, max_size):
+    def schwarz_parts(self, max_size, leading=None):
         """Pieces of a two-level additive Schwarz preconditioner on clusters of <= max_size.
 
         Returns (perm, bounds, inverse_offsets, inverses, coarse) of the unscaled integrals
         (P / scale): subdomain d is panels perm[bounds[d]:bounds[d+1]]; its principal block's
         inverse (row-major) is at inverses[inverse_offsets[d]:]; coarse is R P R^T for the
-        subdomain indicators R."""
+        subdomain indicators R. leading: cover only the first `leading` panels of the cluster
+        numbering (whole clusters of the tree): the preconditioner of that principal block."""
         bounds = self.tree.partition(max_size)
+        if leading is not None:
+            bounds = bounds[:np.searchsorted(bounds, leading) + 1]
+        end = bounds[-1]
+
+        def within(blocks, offsets):
+            # the blocks inside the covered panels (offsets: the start of each block's data)
+            keep = (blocks[:, 0] + blocks[:, 1] <= end) & (blocks[:, 2] + blocks[:, 3] <= end)
+            return keep, blocks[keep], offsets[:-1][keep]
+
+        _, dense_blocks, dense_offsets = within(self.dense_blocks, self.dense_offsets)
+        low, lr_blocks, lr_offsets = within(self.lr_blocks, self.lr_offsets)
+        lr_ranks = self.lr_ranks[low]
         sizes = np.diff(bounds)
         domain_of = np.repeat(np.arange(len(sizes)), sizes)
 
@@ -323,16 +379,16 @@ class HMatrixOperator(LinearOperator):
             ptr = np.searchsorted(d[idx], np.arange(len(sizes) + 1))
             return ptr.astype(np.int64), idx.astype(np.int64)
 
-        dense_ptr, dense_idx = inside(self.dense_blocks)
-        lr_ptr, lr_idx = inside(self.lr_blocks)
+        dense_ptr, dense_idx = inside(dense_blocks)
+        lr_ptr, lr_idx = inside(lr_blocks)
         inv_offsets = np.concatenate(([0], np.cumsum(sizes * sizes))).astype(np.int64)
         inverses = np.empty(inv_offsets[-1])
         with threadpool_limits(limits=1, user_api="blas"):     # as in _compress
-            hkernels.subdomain_inverses(bounds, dense_ptr, dense_idx, self.dense_blocks,
-                                        self.dense_offsets, self.dense_data, lr_ptr, lr_idx,
-                                        self.lr_blocks, self.lr_offsets, self.lr_ranks,
-                                        self.lr_data, inv_offsets, inverses)
-        coarse = hkernels.coarse_matrix(domain_of, len(sizes), self.dense_blocks,
-                                        self.dense_offsets, self.dense_data, self.lr_blocks,
-                                        self.lr_offsets, self.lr_ranks, self.lr_data)
+            hkernels.subdomain_inverses(bounds, dense_ptr, dense_idx, dense_blocks,
+                                        dense_offsets, self.dense_data, lr_ptr, lr_idx,
+                                        lr_blocks, lr_offsets, lr_ranks, self.lr_data,
+                                        inv_offsets, inverses)
+        coarse = hkernels.coarse_matrix(domain_of, len(sizes), dense_blocks, dense_offsets,
+                                        self.dense_data, lr_blocks, lr_offsets, lr_ranks,
+                                        self.lr_data)
         return self.perm, bounds, inv_offsets, inverses, coarse

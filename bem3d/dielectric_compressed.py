@@ -1,0 +1,141 @@
+"""Dielectric bodies with the compressed backend: the coupled system as H-matrices, by GMRES.
+
+The unknowns, rows and scaling are those of dielectric.solve_system (dense LU): conductor rows
+are the single-layer rows P, interface rows w_k (sigma_k - lambda_k/(2 pi) (K sigma)_k) with
+w_k = scale * area_k. P is the symmetric H-matrix over all panels, its cluster tree split at
+the root into conductors and interfaces, so that its conductor block and its subdomains are
+those of the conductors alone; the blocks among interfaces, never used, are left out. K
+(interface rows x all panels) is a general H-matrix (operators.hfield). Restarted GMRES (Saad
+& Schultz 1986, SIAM J. Sci. Stat. Comput. 7, 856-869) with a block-diagonal preconditioner:
+two-level Schwarz on the conductor rows, 1/w_k on the interface rows (the diagonal of that
+block: a flat panel's own normal field vanishes)."""
+
+import math
+import time
+
+import numba
+import numpy as np
+from scipy.sparse.linalg import LinearOperator, gmres
+from threadpoolctl import threadpool_limits
+
+from .dielectric import normal_field_arguments, system_result, system_rhs, union_panels
+from .geometry import Panels
+from .operators import PairRules
+from .operators.cluster import ClusterTree
+from .operators.hfield import FieldOperator, FieldPlan, field_arguments
+from .operators.hmatrix import Compression, HMatrixOperator, HMatrixPlan
+from .solve import SchwarzPreconditioner
+
+#: Krylov vectors kept between GMRES restarts.
+RESTART = 60
+
+
+class DielectricPlan:
+    """Block structures and memory of the compressed dielectric system, before assembly.
+
+    system: dielectric.DielectricSystem; subdomain_size: most panels in a Schwarz subdomain."""
+
+    def __init__(self, system, rules=PairRules(), compression=Compression(), subdomain_size=128):
+        self.system, self.rules, self.compression = system, rules, compression
+        self.both = union_panels(system)
+        conductors, inter = system.conductors, system.interfaces
+        leaf = compression.leaf_size
+        tree = ClusterTree.build(conductors.vertices, conductors.centroids, leaf)
+        # below the whole model's size, so that no subdomain mixes conductors and interfaces
+        self.subdomain_size = min(subdomain_size, max(1, system.n_panels - 1))
+        self.field = None              # stays so if every dielectric face lies on a conductor
+        if len(inter):
+            rows = ClusterTree.build(inter.vertices, inter.centroids, leaf)
+            tree = ClusterTree.join(tree, rows)
+        # only the conductor rows of P are used: the blocks among interfaces are left out
+        self.single = HMatrixPlan(self.both, rules, compression, system.ground_z, tree=tree,
+                                  leading=len(conductors))
+        if len(inter):
+            ordered = Panels(inter.vertices[rows.perm], inter.owner[rows.perm], inter.names)
+            sources = self.single.panels
+            image = (None if system.ground_z is None
+                     else normal_field_arguments(ordered, sources.mirrored(system.ground_z)))
+            self.field = FieldPlan(rows, tree, field_arguments(
+                normal_field_arguments(ordered, sources), image), compression)
+
+    def operator_bytes(self):
+        """Estimated bytes of both compressed operators."""
+        return self.single.operator_bytes() + self.field_bytes()
+
+    def field_bytes(self):
+        """Estimated bytes of the normal-field operator."""
+        return 0 if self.field is None else self.field.operator_bytes()
+
+    def work_bytes(self, n_rhs):
+        """Bytes beside the operators: kernel arguments, preconditioner and solver vectors."""
+        n = self.system.n_panels
+        gmres_vectors = 8 * n * (RESTART + 10 + numba.get_num_threads())
+        field = 0 if self.field is None else self.field.argument_bytes()
+        return self.single.work_bytes(n_rhs, self.subdomain_size) + field + gmres_vectors
+
+
+def _conductor_schwarz(operator, nc, max_size):
+    # Schwarz on the subdomains inside the conductor half of the tree: that of P_cc alone
+    perm, bounds, offsets, inverses, coarse = operator.schwarz_parts(max_size, nc)
+    return SchwarzPreconditioner(perm[:nc], bounds, offsets, inverses, coarse,
+                                 factor=1.0 / operator.scale)
+
+
+def solve_planned(plan, volts=None, tol=1e-7, max_iterations=1000, memory_limit=None):
+    """Assemble and solve a DielectricPlan: a CapacitanceResult with timings in its solver
+    record. memory_limit: bytes the operators may take together (ResourceError beyond)."""
+    system = plan.system
+    nc, lam = len(system.conductors), system.lam
+    t0 = time.perf_counter()
+    rest = None if memory_limit is None else memory_limit - plan.field_bytes()
+    single = HMatrixOperator.assemble(plan.single, 1.0, rest)
+    rest = None if memory_limit is None else memory_limit - single.nbytes
+    field = None if plan.field is None else FieldOperator(plan.field, rest)
+    assembly = time.perf_counter() - t0
+    t0 = time.perf_counter()
+    schwarz = _conductor_schwarz(single, nc, plan.subdomain_size)
+    scale = np.mean(single.diagonal()[:nc] / system.conductors.areas)
+    weight = scale * system.interfaces.areas
+    n = system.n_panels
+
+    def rows(x):
+        y = np.empty(n)
+        y[:nc] = (single @ x)[:nc]
+        if field is not None:
+            y[nc:] = weight * (x[nc:] - lam / (2 * math.pi) * (field @ x))
+        return y
+
+    def precondition(r):
+        return np.concatenate([schwarz(r[:nc, None])[:, 0], r[nc:] / weight])
+
+    matrix = LinearOperator((n, n), matvec=rows, dtype=np.float64)
+    inverse = LinearOperator((n, n), matvec=precondition, dtype=np.float64)
+    rhs = system_rhs(system)
+    total = np.zeros_like(rhs)
+    steps = []
+    with threadpool_limits(limits=1, user_api="blas"):
+        for j in range(rhs.shape[1]):
+            count = [0]
+
+            def step(_, count=count):
+                count[0] += 1
+
+            total[:, j], _ = gmres(matrix, rhs[:, j], rtol=tol, atol=0.0, restart=RESTART,
+                                   maxiter=max(1, max_iterations // RESTART), M=inverse,
+                                   callback=step, callback_type="pr_norm")
+            steps.append(count[0])
+    residual = max(float(np.linalg.norm(rows(total[:, j]) - rhs[:, j])
+                         / np.linalg.norm(rhs[:, j])) for j in range(rhs.shape[1]))
+    solve = time.perf_counter() - t0
+    field_bytes = 0 if field is None else field.nbytes
+    result = system_result(system, plan.both, total, volts, {
+        "backend": "compressed", "solver": "gmres-schwarz (dielectric interfaces)",
+        "iterations": max(steps), "relative_residual": residual, "tolerance": tol,
+        "converged": residual <= tol, "pair_rules": plan.rules.as_dict(),
+        "compression": plan.compression.as_dict(), "subdomain_size": plan.subdomain_size,
+        "single_layer_MiB": single.nbytes / 2**20, "normal_field_MiB": field_bytes / 2**20,
+        "compression_ratio": (single.nbytes + field_bytes) / (8.0 * n * n),
+        "preconditioner_MiB": schwarz.nbytes / 2**20,
+        "memory_estimate_MiB": (plan.operator_bytes() + plan.work_bytes(rhs.shape[1])) / 2**20})
+    result.timings_s.update({"assembly": assembly, "solve": solve})
+    return result
