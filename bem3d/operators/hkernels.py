@@ -326,7 +326,8 @@ def compress_blocks(blocks, slots, scratch, ranks, eps_aca, eps_svd, verify, kar
     scratch[slots[b]:] and its rank to ranks[b], or ranks[b] = -1 if no rank below the
     block's break-even rank rows*cols/(rows+cols) reached eps_aca (it is then stored dense).
 
-    The room at slots[b] is kmax (rows + cols) numbers, kmax the most rank ACA may take."""
+    The room at slots[b] is kmax (rows + cols) numbers, kmax the most rank ACA may take.
+    Blocks of at most `verify` entries are checked against every entry (0: none)."""
     for b in prange(blocks.shape[0]):
         r0, m, c0, n = blocks[b, 0], blocks[b, 1], blocks[b, 2], blocks[b, 3]
         kmax = (slots[b + 1] - slots[b]) // (m + n)
@@ -335,7 +336,7 @@ def compress_blocks(blocks, slots, scratch, ranks, eps_aca, eps_svd, verify, kar
             ranks[b] = -1 if not ok else 0
             continue
         uu, vv, r = _recompress(u, v, k, eps_svd)
-        if verify and not _within(r0, m, c0, n, uu, vv, r, eps_aca + eps_svd, kargs):
+        if m * n <= verify and not _within(r0, m, c0, n, uu, vv, r, eps_aca + eps_svd, kargs):
             ranks[b] = -1
             continue
         off = slots[b]

@@ -33,12 +33,15 @@ STORAGE = np.float32
 #: Shares of a block's tolerance given to ACA's stopping test and to the SVD truncation: ACA's
 #: estimate of its own error can be a few times too small, so it gets the smaller share.
 ACA_SHARE, SVD_SHARE = 0.05, 0.5
-#: Blocks compressed to a tolerance below this are checked against all their entries. Close
-#: to the quadrature's rule boundaries (kernels.panel_pair_integral) the entries jump by ~1e-4
-#: relative along single rows or columns, which sampling can miss; at looser tolerances the
-#: jumps are within the tolerance (on the 32k-panel sensor model at 1e-4 the check changed no
-#: block and cost a quarter of the compression time).
+#: Blocks of at most VERIFY_NUMBERS entries compressed to a tolerance below VERIFY_BELOW are
+#: checked against all their entries. Close to the quadrature's rule boundaries
+#: (kernels.panel_pair_integral) the entries jump by ~1e-4 relative along single rows or
+#: columns, which sampling can miss; such blocks are small (their clusters lie within a few
+#: rule radii of each other). At looser tolerances the jumps are within the tolerance (on the
+#: 32k-panel sensor model at 1e-4 the check changed no block and cost a quarter of the
+#: compression time).
 VERIFY_BELOW = 1e-4
+VERIFY_NUMBERS = 16384
 #: Admissible blocks whose break-even rank is below this are filled dense without trying ACA.
 DENSE_BELOW = 8
 #: Admissible blocks whose ranks are measured to estimate the memory before assembly.
@@ -167,7 +170,8 @@ def _compress(blocks, compression, kargs, budget=None):
         # each thread runs its own small LAPACK calls: a threaded BLAS inside would oversubscribe
         with threadpool_limits(limits=1, user_api="blas"):
             hkernels.compress_blocks(batch, slots, scratch, ranks[start:stop], ACA_SHARE * eps,
-                                     SVD_SHARE * eps, eps < VERIFY_BELOW, kargs)
+                                     SVD_SHARE * eps, VERIFY_NUMBERS if eps < VERIFY_BELOW else 0,
+                                     kargs)
         r = np.maximum(ranks[start:stop], 0)
         offsets = np.concatenate(([0], np.cumsum(r * (batch[:, 1] + batch[:, 3]))))
         piece = np.empty(offsets[-1], STORAGE)
