@@ -39,9 +39,10 @@ ACA_SHARE, SVD_SHARE = 0.05, 0.5
 #: columns, which sampling can miss; such blocks are small (their clusters lie within a few
 #: rule radii of each other). At looser tolerances the jumps are within the tolerance (on the
 #: 32k-panel sensor model at 1e-4 the check changed no block and cost a quarter of the
-#: compression time).
+#: compression time). Larger blocks are left to ACA's own sampled checks: checking every entry
+#: of those would cost as much as storing them dense.
 VERIFY_BELOW = 1e-4
-VERIFY_NUMBERS = 16384
+VERIFY_NUMBERS = 32768
 #: Admissible blocks whose break-even rank is below this are filled dense without trying ACA.
 DENSE_BELOW = 8
 #: Admissible blocks whose ranks are measured to estimate the memory before assembly.
