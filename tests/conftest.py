@@ -1,5 +1,7 @@
 """Shared helpers: panels from the parametric shapes, solved with the public pipeline."""
 
+import signal
+
 import numpy as np
 
 from bem3d.geometry import Panels
@@ -16,3 +18,9 @@ def make_panels(*parts):
 def maxwell(*parts, **options):
     """Maxwell capacitance matrix (F) of the given conductors in vacuum."""
     return solve_panels(make_panels(*parts), **options).maxwell
+
+
+def default_sigint():
+    """preexec_fn for a child that must see Ctrl-C: a run started in the background has SIGINT
+    ignored, which children inherit, and Python then never raises KeyboardInterrupt."""
+    signal.signal(signal.SIGINT, signal.SIG_DFL)

@@ -19,6 +19,7 @@ from bem3d import safety, shapes
 from bem3d.cli import main
 from bem3d.errors import ResourceError
 from bem3d.meshio_io import read_conductors
+from conftest import default_sigint
 
 pytestmark = pytest.mark.filterwarnings("ignore::DeprecationWarning")
 
@@ -212,7 +213,7 @@ def test_real_sigint_stops_a_running_extraction_cleanly(tmp_path):
     out = tmp_path / "o"
     proc = subprocess.Popen([sys.executable, "-m", "bem3d.cli", "extract", str(mesh), "--out",
                              str(out)], stderr=subprocess.PIPE, stdout=subprocess.DEVNULL,
-                            text=True)
+                            text=True, preexec_fn=default_sigint)
     for line in proc.stderr:
         if line.startswith("assembling"):
             break

@@ -26,7 +26,7 @@ from bem3d.model import Model
 from bem3d.pipeline import extract, solve_panels
 from bem3d.sweep import (add_sweep_parser, move_conductors, parse_entry, parse_move,
                          parse_values, run_sweep)
-from conftest import make_panels
+from conftest import default_sigint, make_panels
 
 PLATE = dict(lx=1.0, ly=1.0, nx=8, ny=8, grading=0.5)      # 128 panels
 GAP0 = 0.1                                                  # mm, top plate's height at rest
@@ -259,7 +259,7 @@ def _run_until(argv, stop_after, sig, cwd):
     """Start a sweep in a new process group; send sig after `stop_after` solved cases."""
     proc = subprocess.Popen([sys.executable, "-c", SCRIPT, "sweep", *map(str, argv),
                              "--json-lines"], stdout=subprocess.PIPE, text=True, cwd=cwd,
-                            start_new_session=True)
+                            start_new_session=True, preexec_fn=default_sigint)
     lines = []
     for line in proc.stdout:
         lines.append(line)
