@@ -95,12 +95,12 @@ def estimate_seconds(n_panels, solver="direct", n_points=0, excitations=1, n_thr
         work = n_panels * math.log2(max(n_panels, 2)) / n_threads
         stages = {"assembly": work * COMPRESSED_ASSEMBLY_SECONDS,
                   "CG": work * CG_ITERATIONS * COMPRESSED_ITERATION_SECONDS}
-    elif solver == "direct":
-        stages = {"assembly": n_panels**2 / (PAIR_RATE_PER_THREAD * n_threads),
-                  "Cholesky": n_panels**3 / 3 / (FLOP_RATE_PER_THREAD * n_threads)}
     else:
-        stages = {"assembly": n_panels**2 / (PAIR_RATE_PER_THREAD * n_threads),
-                  "CG": CG_ITERATIONS * 8 * n_panels**2 / MATRIX_BYTES_PER_SECOND}
+        stages = {"assembly": n_panels**2 / (PAIR_RATE_PER_THREAD * n_threads)}
+        if solver == "direct":
+            stages["Cholesky"] = n_panels**3 / 3 / (FLOP_RATE_PER_THREAD * n_threads)
+        else:
+            stages["CG"] = CG_ITERATIONS * 8 * n_panels**2 / MATRIX_BYTES_PER_SECOND
     stages["fields"] = n_points * n_panels * (fixed + per_excitation * excitations) / n_threads
     return {k: v for k, v in stages.items() if v > 0}
 

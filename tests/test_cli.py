@@ -11,8 +11,8 @@ import pytest
 import reference_values as ref
 
 from bem3d import shapes
-from bem3d.cli import main
 from bem3d.constants import EPS0
+from conftest import run_cli as run
 
 pv = pytest.importorskip("pyvista")
 
@@ -29,12 +29,6 @@ def two_spheres(tmp_path):
     a = write_mesh(tmp_path / "left.stl", [shapes.octahedral_sphere(1.0, 6)])
     b = write_mesh(tmp_path / "right.stl", [shapes.octahedral_sphere(1.0, 6, center=(3.0, 0, 0))])
     return a, b
-
-
-def run(argv, capsys):
-    code = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return code, out, err
 
 
 def test_extract_writes_every_output(two_spheres, tmp_path, capsys):

@@ -24,7 +24,7 @@ from bem3d.operators.cluster import ClusterTree, block_partition
 from bem3d.operators.hfield import FieldOperator
 from bem3d.operators.hmatrix import Compression
 from bem3d.pipeline import solve_panels
-from conftest import make_panels
+from conftest import assert_admissible, make_panels
 
 SMALL_LEAVES = Compression(leaf_size=16)
 
@@ -87,10 +87,7 @@ def test_blocks_of_two_trees_cover_the_matrix_once_and_far_blocks_are_admissible
     for t, s in far:
         corners_t = inter.vertices[rows.perm[rows.start[t]:rows.end[t]]].reshape(-1, 3)
         corners_s = cond.vertices[cols.perm[cols.start[s]:cols.end[s]]].reshape(-1, 3)
-        diam = min(np.linalg.norm(np.ptp(c, axis=0)) for c in (corners_t, corners_s))
-        gap = np.maximum(0.0, np.maximum(corners_s.min(0) - corners_t.max(0),
-                                         corners_t.min(0) - corners_s.max(0)))
-        assert diam <= eta * np.linalg.norm(gap)
+        assert_admissible(corners_t, corners_s, eta)
 
 
 @pytest.mark.parametrize("ground_z", [None, -1.5], ids=["free space", "ground plane"])

@@ -16,7 +16,7 @@ from bem3d.operators.cluster import ClusterTree, block_partition
 from bem3d.operators.dense import DenseOperator
 from bem3d.operators.hmatrix import Compression, HMatrixOperator, HMatrixPlan, _compress
 from bem3d.pipeline import solve_panels
-from conftest import make_panels
+from conftest import assert_admissible, make_panels
 
 
 @pytest.fixture(scope="module")
@@ -65,10 +65,7 @@ def test_blocks_cover_the_matrix_once_and_far_blocks_are_admissible(three):
     for t, s in far:
         corners_t = three.vertices[tree.perm[tree.start[t]:tree.end[t]]].reshape(-1, 3)
         corners_s = three.vertices[tree.perm[tree.start[s]:tree.end[s]]].reshape(-1, 3)
-        diam = min(np.linalg.norm(np.ptp(c, axis=0)) for c in (corners_t, corners_s))
-        gap = np.maximum(0.0, np.maximum(corners_s.min(0) - corners_t.max(0),
-                                         corners_t.min(0) - corners_s.max(0)))
-        assert diam <= eta * np.linalg.norm(gap)
+        assert_admissible(corners_t, corners_s, eta)
 
 
 @pytest.mark.parametrize("tolerance", [1e-4, 1e-5, 1e-6])

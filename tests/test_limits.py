@@ -16,10 +16,9 @@ import meshio
 import pytest
 
 from bem3d import safety, shapes
-from bem3d.cli import main
 from bem3d.errors import ResourceError
 from bem3d.meshio_io import read_conductors
-from conftest import default_sigint
+from conftest import default_sigint, run_cli as run
 
 pytestmark = pytest.mark.filterwarnings("ignore::DeprecationWarning")
 
@@ -31,12 +30,6 @@ def write_sphere(path, level=2, center=(0.0, 0.0, 0.0)):
     with contextlib.redirect_stderr(io.StringIO()):
         meshio.write(path, meshio.Mesh(points, [("triangle", tris)]))
     return path
-
-
-def run(argv, capsys):
-    code = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return code, out, err
 
 
 def one_line(err):

@@ -14,9 +14,9 @@ import meshio
 import pytest
 
 from bem3d import shapes
-from bem3d.cli import main
 from bem3d.errors import Bem3dError
 from bem3d.safety import STAGE_PREFIX
+from conftest import run_cli as run
 
 OUTPUTS = ["bem3d_capacitance.cir", "capacitance.csv", "result.json", "surface.vtp"]
 
@@ -26,12 +26,6 @@ def write_sphere(path, center=(0.0, 0.0, 0.0)):
     with contextlib.redirect_stderr(io.StringIO()):
         meshio.write(path, meshio.Mesh(points, [("triangle", tris)]), file_format="obj")
     return path
-
-
-def run(argv, capsys):
-    code = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return code, out, err
 
 
 def snapshot(folder):
