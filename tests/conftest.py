@@ -42,3 +42,26 @@ def assert_admissible(corners_t, corners_s, eta):
     gap = np.maximum(0.0, np.maximum(corners_s.min(0) - corners_t.max(0),
                                      corners_t.min(0) - corners_s.max(0)))
     assert diam <= eta * np.linalg.norm(gap)
+
+
+def pair_rule_block(xa, wa, areas_a, xb, wb, areas_b):
+    """Galerkin integrals of 1/|x - y| over panels a (rows) and b (columns) by the product of
+    point rules: A_k A_l sum_pq w_p w_q / |x_kp - y_lq|, with rule points xa (m, p, 3) and
+    xb (n, q, 3) and weights summing to 1. Plain numpy, a row at a time to keep memory small."""
+    out = np.empty((len(xa), len(xb)))
+    for k in range(len(xa)):
+        d = np.linalg.norm(xa[k][None, :, None, :] - xb[:, None, :, :], axis=-1)
+        out[k] = np.einsum("p,q,npq->n", wa, wb, 1.0 / d)
+    return out * areas_a[:, None] * areas_b[None, :]
+
+
+def normal_field_block(x, w, normals, y, wy, areas_y):
+    """sum_p w_p n_i . A_l sum_t wy_t (x_ip - y_lt) / |x_ip - y_lt|^3: the normal field of unit
+    charge densities on source panels (rule points y (n, t, 3), weights wy, areas) averaged
+    over each test panel's points x (m, p, 3) with weights w and unit normals (m, 3). Numpy."""
+    out = np.empty((len(x), len(y)))
+    for i in range(len(x)):
+        r = x[i][None, :, None, :] - y[:, None, :, :]
+        along = r @ normals[i] / np.linalg.norm(r, axis=-1) ** 3
+        out[i] = np.einsum("p,t,npt->n", w, wy, along)
+    return out * areas_y[None, :]

@@ -22,9 +22,10 @@ from bem3d.dielectric_compressed import DielectricPlan
 from bem3d.geometry import Panels
 from bem3d.operators.cluster import ClusterTree, block_partition
 from bem3d.operators.hfield import FieldOperator
-from bem3d.operators.hmatrix import Compression
+from bem3d.operators.hkernels import MID_RULE, NEAR_RULE, ONE_POINT, PAIR_RULE
+from bem3d.operators.hmatrix import Compression, block_rules
 from bem3d.pipeline import solve_panels
-from conftest import assert_admissible, make_panels
+from conftest import assert_admissible, make_panels, normal_field_block
 
 SMALL_LEAVES = Compression(leaf_size=16)
 
@@ -126,11 +127,32 @@ def test_sphere_in_a_shell_converges_to_the_closed_form():
                                                          rel=2e-3)
 
 
+def field_rule_block(kargs, block, rule):
+    """Block (r0, rows, c0, cols) of the normal-field operator by the block's rule (numpy),
+    from its argument tuple (hfield.field_arguments, cluster order): each test panel's points
+    against the sources' centroids or mid or near rule points, less the images' if any."""
+    r0, m, c0, n = block
+    x, w, normals = kargs[0][r0:r0 + m], kargs[1], kargs[2][r0:r0 + m]
+
+    def sources(centroids, areas, pts_mid, pts_near):
+        y, wy = {ONE_POINT: (centroids[c0:c0 + n, None, :], np.ones(1)),
+                 MID_RULE: (pts_mid[c0:c0 + n], kargs[9]),
+                 NEAR_RULE: (pts_near[c0:c0 + n], kargs[11])}[rule]
+        return normal_field_block(x, w, normals, y, wy, areas[c0:c0 + n])
+
+    out = sources(kargs[5], kargs[7], kargs[8], kargs[10])
+    if kargs[-1]:
+        out -= sources(kargs[17], kargs[19], kargs[20], kargs[21])
+    return out
+
+
 @pytest.mark.parametrize("ground_z", [None, -1.5], ids=["free space", "ground plane"])
 @pytest.mark.parametrize("tolerance", [1e-4, 1e-6])
 def test_normal_field_blocks_are_within_their_tolerance(two_in_a_box, ground_z, tolerance):
-    """Every compressed block of the normal-field operator against the dense dielectric rows'
-    entries (dielectric._interface_rows), relative in the Frobenius norm, block by block."""
+    """Every compressed block of the normal-field operator against its entries: the dense
+    dielectric rows' (dielectric._interface_rows) where the block keeps per-pair rules, else
+    its block rule's (numpy); relative in the Frobenius norm, block by block, and the
+    product."""
     cond, bodies = two_in_a_box
     system = plan_dielectrics(cond, bodies, ground_z=ground_z)
     plan = DielectricPlan(system, compression=Compression(tolerance=tolerance, leaf_size=16))
@@ -138,6 +160,11 @@ def test_normal_field_blocks_are_within_their_tolerance(two_in_a_box, ground_z, 
     exact = np.empty((len(system.interfaces), system.n_panels))
     _interface_rows(exact, system, union_panels(system))
     rows, cols = plan.field.rows.perm, plan.field.columns.perm
+    for block, rule in zip(plan.field.far, block_rules(plan.field.far, plan.field.kargs)):
+        if rule != PAIR_RULE:
+            r0, m, c0, n = block
+            exact[np.ix_(rows[r0:r0 + m], cols[c0:c0 + n])] = field_rule_block(
+                plan.field.kargs, block, rule)
     for (r0, m, c0, n), r, off in zip(field.lr_blocks, field.lr_ranks, field.lr_offsets):
         u = field.lr_data[off:off + m * r].reshape(m, r)
         v = field.lr_data[off + m * r:off + (m + n) * r].reshape(n, r)

@@ -3,7 +3,8 @@
 Panels are clustered by bounding-box bisection; blocks of cluster pairs with
 min(diam) <= eta * dist are admissible and approximated by adaptive cross approximation with
 partial pivoting (Bebendorf 2000, Numer. Math. 86, 565-589) followed by QR/SVD recompression to
-the block tolerance; all other blocks are leaves filled densely with the dense backend's pair
+the block tolerance, their entries all by the one point rule the dense backend would give the
+block's closest pair (hkernels.block_rules), so that they vary smoothly; all other blocks are leaves filled densely with the dense backend's pair
 integrals (Hackbusch 1999, Computing 62, 89-108; Börm, Grasedyck & Hackbusch 2003, Hierarchical
 matrices, lecture notes 21, MPI Leipzig). Storage and work grow like N log N.
 """
@@ -33,16 +34,6 @@ STORAGE = np.float32
 #: Shares of a block's tolerance given to ACA's stopping test and to the SVD truncation: ACA's
 #: estimate of its own error can be a few times too small, so it gets the smaller share.
 ACA_SHARE, SVD_SHARE = 0.05, 0.5
-#: Blocks of at most VERIFY_NUMBERS entries compressed to a tolerance below VERIFY_BELOW are
-#: checked against all their entries. Close to the quadrature's rule boundaries
-#: (kernels.panel_pair_integral) the entries jump by ~1e-4 relative along single rows or
-#: columns, which sampling can miss; such blocks are small (their clusters lie within a few
-#: rule radii of each other). At looser tolerances the jumps are within the tolerance (on the
-#: 32k-panel sensor model at 1e-4 the check changed no block and cost a quarter of the
-#: compression time). Larger blocks are left to ACA's own sampled checks: checking every entry
-#: of those would cost as much as storing them dense.
-VERIFY_BELOW = 1e-4
-VERIFY_NUMBERS = 32768
 #: Admissible blocks whose break-even rank is below this are filled dense without trying ACA.
 DENSE_BELOW = 8
 #: Admissible blocks whose ranks are measured to estimate the memory before assembly.
@@ -97,6 +88,19 @@ def split_blocks(tree, compression, columns=None):
     return np.concatenate((near, far[small])), far[~small]
 
 
+def block_rules(blocks, kargs):
+    """The quadrature rule of each admissible block (hkernels.block_rules), for the
+    single-layer or the normal-field argument tuple kargs."""
+    if len(kargs) == hkernels.SINGLE_LAYER_ARGUMENTS:
+        centroids, radii, near, mid, far = kargs[2], kargs[3], kargs[14], kargs[15], kargs[16]
+        return hkernels.block_rules(blocks, centroids[:, None, :], radii, centroids, radii,
+                                    near, mid, far)
+    points, centroids, radii, near, mid, far = (kargs[0], kargs[5], kargs[6], kargs[12],
+                                                kargs[13], kargs[14])
+    return hkernels.block_rules(blocks, points, np.zeros(len(points)), centroids, radii,
+                                near, mid, far)
+
+
 def estimate_lowrank(far, compression, kargs):
     """Estimated numbers of the low-rank factors of the blocks far: the ranks of a sample of
     blocks of each size class (log2 of rows*cols) stand for the class."""
@@ -134,6 +138,8 @@ def assemble_blocks(near, far, compression, kargs, dense_numbers, memory_limit, 
     lr_data = _concatenate(pieces)
     # blocks that did not compress below the break-even rank join the dense leaves
     dense_blocks = np.concatenate((near, far[ranks < 0]))
+    dense_rules = np.concatenate((np.full(len(near), hkernels.PAIR_RULE, np.int64),
+                                  block_rules(far[ranks < 0], kargs)))
     dense_sizes = dense_blocks[:, 1] * dense_blocks[:, 3]
     need = item * (lr_data.size + dense_sizes.sum())
     if memory_limit is not None and need > memory_limit:
@@ -141,7 +147,8 @@ def assemble_blocks(near, far, compression, kargs, dense_numbers, memory_limit, 
                             f"than the {memory_limit / 2**30:.1f} GiB allowed")
     dense_offsets = np.concatenate(([0], np.cumsum(dense_sizes))).astype(np.int64)
     dense_data = np.empty(dense_offsets[-1], STORAGE)
-    hkernels.fill_dense_blocks(dense_blocks, dense_offsets, dense_data, kargs, symmetric)
+    hkernels.fill_dense_blocks(dense_blocks, dense_rules, dense_offsets, dense_data, kargs,
+                               symmetric)
     lr_offsets = np.concatenate(
         ([0], np.cumsum(lr_ranks * (lr_blocks[:, 1] + lr_blocks[:, 3])))).astype(np.int64)
     return dict(dense_blocks=dense_blocks, dense_offsets=dense_offsets, dense_data=dense_data,
@@ -159,6 +166,7 @@ def _compress(blocks, compression, kargs, budget=None):
 
     budget: bytes the factors may take; passing it stops the run with ResourceError."""
     kmax = _room(blocks, compression.max_rank)
+    rules = block_rules(blocks, kargs)
     ranks = np.empty(len(blocks), np.int64)
     pieces, start = [], 0
     eps = compression.tolerance
@@ -170,9 +178,8 @@ def _compress(blocks, compression, kargs, budget=None):
         scratch = np.empty(slots[-1])
         # each thread runs its own small LAPACK calls: a threaded BLAS inside would oversubscribe
         with threadpool_limits(limits=1, user_api="blas"):
-            hkernels.compress_blocks(batch, slots, scratch, ranks[start:stop], ACA_SHARE * eps,
-                                     SVD_SHARE * eps, VERIFY_NUMBERS if eps < VERIFY_BELOW else 0,
-                                     kargs)
+            hkernels.compress_blocks(batch, rules[start:stop], slots, scratch, ranks[start:stop],
+                                     ACA_SHARE * eps, SVD_SHARE * eps, kargs)
         r = np.maximum(ranks[start:stop], 0)
         offsets = np.concatenate(([0], np.cumsum(r * (batch[:, 1] + batch[:, 3]))))
         piece = np.empty(offsets[-1], STORAGE)
