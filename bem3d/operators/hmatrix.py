@@ -32,8 +32,10 @@ BATCH_NUMBERS = 2**24
 #: stored operator is exactly symmetric, so CG sees a symmetric matrix.
 STORAGE = np.float32
 #: Shares of a block's tolerance given to ACA's stopping test and to the SVD truncation: ACA's
-#: estimate of its own error can be a few times too small, so it gets the smaller share.
-ACA_SHARE, SVD_SHARE = 0.05, 0.5
+#: estimate of its own error can be too small, so it gets the smaller share. On 430 blocks of
+#: each 32k-panel test model (sphere, sensor head) at 1e-5 and 1e-6 the worst measured block
+#: error was 0.61 of the tolerance; at an ACA share of 0.05 a third more blocks went dense.
+ACA_SHARE, SVD_SHARE = 0.2, 0.5
 #: Admissible blocks whose break-even rank is below this are filled dense without trying ACA.
 DENSE_BELOW = 8
 #: Admissible blocks whose ranks are measured to estimate the memory before assembly.
