@@ -74,7 +74,7 @@ def timed(cmd, env=None):
 
 def bem3d_run(mesh, out, env):
     wall, _ = timed([sys.executable, "-m", "bem3d.cli", "extract", str(mesh), "--out", str(out),
-                     "--quiet"], env)
+                     "--backend", "dense", "--quiet"], env)
     record = json.loads((out / "result.json").read_text())
     return wall, record
 
@@ -104,8 +104,8 @@ def main(argv=None):
             points, tris = shapes.octahedral_sphere(1.0, m)
             mesh = tmp / f"sphere_{len(tris)}.vtu"
             meshio.write(mesh, meshio.Mesh(points, [("triangle", tris)]))
-            cold, _ = bem3d_run(mesh, tmp / "out_cold", cold_env)
-            warm, rec = bem3d_run(mesh, tmp / "out", None)
+            cold, _ = bem3d_run(mesh, tmp / f"out_cold_{m}", cold_env)
+            warm, rec = bem3d_run(mesh, tmp / f"out_{m}", None)
             c = rec["maxwell_capacitance_F"][0][0]
             row = (f"{len(tris):>7} {cold:>7.2f} {warm:>7.2f} {rec['timings_s']['assembly']:>6.2f} "
                    f"{rec['timings_s']['solve']:>7.2f} {rec['solver']['peak_memory_MiB']:>8.0f} "
