@@ -127,6 +127,29 @@ def test_sphere_in_a_shell_converges_to_the_closed_form():
                                                          rel=2e-3)
 
 
+@pytest.mark.parametrize("ground_z", [None, -1.5], ids=["free space", "ground plane"])
+def test_no_field_block_rule_is_less_accurate_than_the_dense_rule_of_its_closest_pair(
+        two_in_a_box, ground_z):
+    """The dense interface rows pick the rule of each test point and source panel by their
+    distance in units of the source's radius (dielectric.normal_field_arguments: near, mid,
+    far); a block's one rule must be that of its closest pair, or a more accurate one."""
+    cond, bodies = two_in_a_box
+    system = plan_dielectrics(cond, bodies, ground_z=ground_z)
+    plan = DielectricPlan(system, compression=SMALL_LEAVES).field
+    kargs = plan.kargs
+    points, centroids, radii, near, mid, far = (kargs[0], kargs[5], kargs[6], kargs[12],
+                                                kargs[13], kargs[14])
+    rules = block_rules(plan.far, kargs)
+    for (r0, m, c0, n), rule in zip(plan.far, rules):
+        x = points[r0:r0 + m].reshape(-1, 3)
+        q = np.min(np.linalg.norm(x[:, None] - centroids[None, c0:c0 + n], axis=-1)
+                   / radii[None, c0:c0 + n])
+        closest = (ONE_POINT if q >= far else MID_RULE if q >= mid
+                   else NEAR_RULE if q >= near else PAIR_RULE)
+        assert rule <= closest
+    assert len(set(rules.tolist())) >= 2
+
+
 def field_rule_block(kargs, block, rule):
     """Block (r0, rows, c0, cols) of the normal-field operator by the block's rule (numpy),
     from its argument tuple (hfield.field_arguments, cluster order): each test panel's points
