@@ -407,6 +407,18 @@ def evaluate_points(points, sigma, closed, verts, normals, centroids, radii, are
         winding[i] /= 4.0 * math.pi
 
 
+@njit(cache=True, inline="always")
+def points_normal_field(x0, x1, x2, m0, m1, m2, q, wq):
+    """sum_t wq_t m . (x - y_t) / |x - y_t|^3 over a source panel's rule points y_t = q[t] (t, 3):
+    the normal field (unit normal m) at x of a unit charge spread by the rule, per unit area."""
+    acc = 0.0
+    for t in range(q.shape[0]):
+        s0, s1, s2 = x0 - q[t, 0], x1 - q[t, 1], x2 - q[t, 2]
+        iv = 1.0 / math.sqrt(s0 * s0 + s1 * s1 + s2 * s2)
+        acc += wq[t] * iv * iv * iv * (s0 * m0 + s1 * m1 + s2 * m2)
+    return acc
+
+
 @njit(cache=True, inline="always", error_model="numpy")
 def normal_field_entry(i, l, points, weights, point_normals, verts, normals, centroids, radii,
                        areas, pts_mid, w_mid, pts_near, w_near, near, mid, far):
@@ -435,12 +447,7 @@ def normal_field_entry(i, l, points, weights, point_normals, verts, normals, cen
             if d2 < (mid * rl) ** 2:
                 q = pts_near[l]
                 wq = w_near
-            acc = 0.0
-            for t in range(q.shape[0]):
-                s0, s1, s2 = x0 - q[t, 0], x1 - q[t, 1], x2 - q[t, 2]
-                iv = 1.0 / math.sqrt(s0 * s0 + s1 * s1 + s2 * s2)
-                acc += wq[t] * iv * iv * iv * (s0 * m0 + s1 * m1 + s2 * m2)
-            total += weights[p] * areas[l] * acc
+            total += weights[p] * areas[l] * points_normal_field(x0, x1, x2, m0, m1, m2, q, wq)
     return total
 
 

@@ -2,8 +2,6 @@
 
 from dataclasses import asdict, dataclass
 
-import numpy as np
-
 from ..quadrature import edge_rule, graded_rule, map_points, triangle_rule
 
 

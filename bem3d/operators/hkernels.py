@@ -14,7 +14,8 @@ import numpy as np
 from numba import njit, prange
 from numba.extending import overload
 
-from ..kernels import _pair, _point_pair_sum, normal_field_entry, panel_pair_integral
+from ..kernels import (_pair, _point_pair_sum, normal_field_entry, panel_pair_integral,
+                       points_normal_field)
 
 #: Length of the single-layer entry tuple (hmatrix.entry_arguments); the normal-field tuple
 #: (hfield.field_arguments) is shorter, which is how _entries tells them apart.
@@ -60,17 +61,14 @@ def _field_rule(i, l, rule, points, weights, point_normals, centroids, areas, pt
     total = 0.0
     for p in range(points.shape[1]):
         x0, x1, x2 = points[i, p, 0], points[i, p, 1], points[i, p, 2]
-        acc = 0.0
         if rule == ONE_POINT:
             s0, s1, s2 = x0 - centroids[l, 0], x1 - centroids[l, 1], x2 - centroids[l, 2]
             iv = 1.0 / math.sqrt(s0 * s0 + s1 * s1 + s2 * s2)
             acc = iv * iv * iv * (s0 * m0 + s1 * m1 + s2 * m2)
+        elif rule == MID_RULE:
+            acc = points_normal_field(x0, x1, x2, m0, m1, m2, pts_mid[l], w_mid)
         else:
-            q, wq = (pts_mid[l], w_mid) if rule == MID_RULE else (pts_near[l], w_near)
-            for t in range(q.shape[0]):
-                s0, s1, s2 = x0 - q[t, 0], x1 - q[t, 1], x2 - q[t, 2]
-                iv = 1.0 / math.sqrt(s0 * s0 + s1 * s1 + s2 * s2)
-                acc += wq[t] * iv * iv * iv * (s0 * m0 + s1 * m1 + s2 * m2)
+            acc = points_normal_field(x0, x1, x2, m0, m1, m2, pts_near[l], w_near)
         total += weights[p] * areas[l] * acc
     return total
 
