@@ -17,7 +17,7 @@ from pathlib import Path
 import numpy as np
 
 #: Bumped whenever the stored arrays change meaning, so that old entries are rebuilt.
-FORMAT = 3
+FORMAT = 4
 
 
 def default_folder():

@@ -11,7 +11,9 @@ class Panels:
 
     vertices: (n, 3, 3) corner coordinates; owner: (n,) index of the conductor each panel belongs
     to; names: conductor names in matrix order. Centroids, unit normals (right-hand rule on the
-    corner order), areas (m^2) and radii (largest centroid-to-corner distance, m) are derived.
+    corner order), areas (m^2), radii (largest centroid-to-corner distance, m) and second
+    moments (m^2: the panel's covariance about its centroid, the mean of (y - c)(y - c)^T over
+    the panel, stored as xx, yy, zz, xy, xz, yz) are derived.
     """
 
     vertices: np.ndarray
@@ -21,6 +23,7 @@ class Panels:
     normals: np.ndarray = field(init=False, repr=False)
     areas: np.ndarray = field(init=False, repr=False)
     radii: np.ndarray = field(init=False, repr=False)
+    moments: np.ndarray = field(init=False, repr=False)
 
     def __post_init__(self):
         v = np.ascontiguousarray(self.vertices, dtype=np.float64)
@@ -28,12 +31,16 @@ class Panels:
         twice_area = np.linalg.norm(cross, axis=1)
         centroids = v.mean(axis=1)
         radii = np.linalg.norm(v - centroids[:, None, :], axis=2).max(axis=1)
+        # the covariance of a uniform triangle is (1/12) sum_i (v_i - c)(v_i - c)^T
+        dv = v - centroids[:, None, :]
+        cov = np.einsum("nia,nib->nab", dv, dv) / 12.0
+        moments = np.ascontiguousarray(cov.reshape(-1, 9)[:, [0, 4, 8, 1, 2, 5]])
         with np.errstate(invalid="ignore", divide="ignore"):
             normals = cross / twice_area[:, None]
         for name, value in [("vertices", v), ("owner", np.ascontiguousarray(self.owner, np.int64)),
                             ("names", tuple(self.names)), ("centroids", centroids),
                             ("normals", np.ascontiguousarray(normals)), ("areas", 0.5 * twice_area),
-                            ("radii", radii)]:
+                            ("radii", radii), ("moments", moments)]:
             object.__setattr__(self, name, value)
 
     @classmethod

@@ -181,10 +181,29 @@ def _outer_closed_sum(xk, wk, vl, nl):
 
 
 @njit(cache=True, inline="always")
-def _pair(k, l, vk, nk, ck, rk, ak, hk, mk, fk, vl, nl, cl, rl, al, hl, ml, fl,
+def moment_pair(a, b, c, d2, qk, k, ql, l):
+    """The mean of 1/|x - y| over panels k and l whose centroids lie (a, b, c) apart (m;
+    d2 = a^2 + b^2 + c^2), to second order in the panels' size (1/m): the Taylor expansion
+    1/d + tr(H Q) / 2 with H = (3 R R^T - d^2 I) / d^5 the Hessian of 1/d and Q = Q_k + Q_l
+    the panels' covariances (Panels.moments, rows qk[k] and ql[l]); the first-order terms
+    vanish about the centroids. The third-order term is left out (a triangle is not symmetric
+    about its centroid), so the relative error falls like (radius / d)^3."""
+    q0 = qk[k, 0] + ql[l, 0]
+    q1 = qk[k, 1] + ql[l, 1]
+    q2 = qk[k, 2] + ql[l, 2]
+    q3 = qk[k, 3] + ql[l, 3]
+    q4 = qk[k, 4] + ql[l, 4]
+    q5 = qk[k, 5] + ql[l, 5]
+    rqr = a * a * q0 + b * b * q1 + c * c * q2 + 2.0 * (a * b * q3 + a * c * q4 + b * c * q5)
+    inv = 1.0 / math.sqrt(d2)
+    return inv * (1.0 + 0.5 * (3.0 * rqr / d2 - (q0 + q1 + q2)) / d2)
+
+
+@njit(cache=True, inline="always")
+def _pair(k, l, vk, nk, ck, rk, ak, qk, hk, mk, fk, vl, nl, cl, rl, al, ql, hl, ml, fl,
           w_hi, w_near, w_mid, self_s, self_w, touch, near, mid, far, same):
-    # panel k of one set against panel l of another (or the same set, same=True); h, m, f are
-    # the touch, near and mid rule points of each set
+    # panel k of one set against panel l of another (or the same set, same=True); q are the
+    # second moments, h, m, f the touch, near and mid rule points of each set
     a = ck[k, 0] - cl[l, 0]
     b = ck[k, 1] - cl[l, 1]
     c = ck[k, 2] - cl[l, 2]
@@ -192,7 +211,7 @@ def _pair(k, l, vk, nk, ck, rk, ak, hk, mk, fk, vl, nl, cl, rl, al, hl, ml, fl,
     s = rk[k] + rl[l]
     aa = ak[k] * al[l]
     if d2 > (far * s) ** 2:
-        return aa / math.sqrt(d2)
+        return aa * moment_pair(a, b, c, d2, qk, k, ql, l)
     if d2 > (mid * s) ** 2:
         return aa * _point_pair_sum(fk[k], w_mid, fl[l], w_mid)
     if d2 > (near * s) ** 2:
@@ -210,38 +229,39 @@ def _pair(k, l, vk, nk, ck, rk, ak, hk, mk, fk, vl, nl, cl, rl, al, hl, ml, fl,
 
 
 @njit(cache=True, inline="always")
-def panel_pair_integral(k, l, verts, normals, centroids, radii, areas,
+def panel_pair_integral(k, l, verts, normals, centroids, radii, areas, moments,
                         pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, self_s, self_w,
                         touch, near, mid, far):
     """Integral over panels k and l of 1/|x - y| dA_x dA_y (m^3), rule chosen by proximity.
 
     Distance is measured in units of s = radius_k + radius_l between centroids:
-    beyond `far` one point each; beyond `mid` the low (mid) rule on both; beyond `near` the
+    beyond `far` the centroids' value with the second-moment term (moment_pair); beyond `mid`
+    the low (mid) rule on both; beyond `near` the
     near rule on both; closer, a point rule on the smaller panel and the closed form on the
     larger (the graded rule inside `touch`); a panel with itself by `self_integral` with edge
     rule self_s, self_w.
     """
-    return _pair(k, l, verts, normals, centroids, radii, areas, pts_hi, pts_near, pts_mid,
-                 verts, normals, centroids, radii, areas, pts_hi, pts_near, pts_mid,
-                 w_hi, w_near, w_mid, self_s, self_w, touch, near, mid, far, True)
+    return _pair(k, l, verts, normals, centroids, radii, areas, moments, pts_hi, pts_near,
+                 pts_mid, verts, normals, centroids, radii, areas, moments, pts_hi, pts_near,
+                 pts_mid, w_hi, w_near, w_mid, self_s, self_w, touch, near, mid, far, True)
 
 
 @njit(cache=True)
-def _image_row(k, out, verts, normals, centroids, radii, areas, pts_hi, w_hi, pts_near, w_near,
-               pts_mid, w_mid, self_s, self_w, touch, near, mid, far,
-               i_verts, i_normals, i_centroids, i_pts_hi, i_pts_near, i_pts_mid):
+def _image_row(k, out, verts, normals, centroids, radii, areas, moments, pts_hi, w_hi,
+               pts_near, w_near, pts_mid, w_mid, self_s, self_w, touch, near, mid, far,
+               i_verts, i_normals, i_centroids, i_moments, i_pts_hi, i_pts_near, i_pts_mid):
     for l in range(k + 1):
-        out[k, l] -= _pair(k, l, verts, normals, centroids, radii, areas, pts_hi, pts_near,
-                           pts_mid, i_verts, i_normals, i_centroids, radii, areas, i_pts_hi,
-                           i_pts_near, i_pts_mid, w_hi, w_near, w_mid, self_s, self_w,
-                           touch, near, mid, far, False)
+        out[k, l] -= _pair(k, l, verts, normals, centroids, radii, areas, moments, pts_hi,
+                           pts_near, pts_mid, i_verts, i_normals, i_centroids, radii, areas,
+                           i_moments, i_pts_hi, i_pts_near, i_pts_mid, w_hi, w_near, w_mid,
+                           self_s, self_w, touch, near, mid, far, False)
 
 
 @njit(parallel=True, cache=True)
-def subtract_images(out, verts, normals, centroids, radii, areas,
+def subtract_images(out, verts, normals, centroids, radii, areas, moments,
                     pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, self_s, self_w,
                     touch, near, mid, far,
-                    i_verts, i_normals, i_centroids, i_pts_hi, i_pts_near, i_pts_mid):
+                    i_verts, i_normals, i_centroids, i_moments, i_pts_hi, i_pts_near, i_pts_mid):
     """out[k, l] -= int_Tk int_Tl' 1/|x - y| for the mirror images l' of the panels in a
     grounded plane (method of images: each panel's image carries the opposite charge).
     The image block is symmetric (reflecting both panels swaps them), so its lower triangle is
@@ -249,28 +269,30 @@ def subtract_images(out, verts, normals, centroids, radii, areas,
     n = areas.shape[0]
     for i in prange((n + 1) // 2):
         i = np.int64(i)          # prange indices may be unsigned; keep index arithmetic signed
-        _image_row(i, out, verts, normals, centroids, radii, areas, pts_hi, w_hi, pts_near,
-                   w_near, pts_mid, w_mid, self_s, self_w, touch, near, mid, far,
-                   i_verts, i_normals, i_centroids, i_pts_hi, i_pts_near, i_pts_mid)
+        _image_row(i, out, verts, normals, centroids, radii, areas, moments, pts_hi, w_hi,
+                   pts_near, w_near, pts_mid, w_mid, self_s, self_w, touch, near, mid, far,
+                   i_verts, i_normals, i_centroids, i_moments, i_pts_hi, i_pts_near, i_pts_mid)
         j = n - 1 - i
         if j != i:
-            _image_row(j, out, verts, normals, centroids, radii, areas, pts_hi, w_hi, pts_near,
-                       w_near, pts_mid, w_mid, self_s, self_w, touch, near, mid, far,
-                       i_verts, i_normals, i_centroids, i_pts_hi, i_pts_near, i_pts_mid)
+            _image_row(j, out, verts, normals, centroids, radii, areas, moments, pts_hi, w_hi,
+                       pts_near, w_near, pts_mid, w_mid, self_s, self_w, touch, near, mid, far,
+                       i_verts, i_normals, i_centroids, i_moments, i_pts_hi, i_pts_near,
+                       i_pts_mid)
     _mirror_lower(out)
 
 
 @njit(cache=True, error_model="numpy")
-def _fill_row(k, out, verts, normals, centroids, radii, areas,
+def _fill_row(k, out, verts, normals, centroids, radii, areas, moments,
               pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, self_s, self_w, touch, near, mid, far):
-    # first the one-point value for every pair (a branch-free loop the compiler vectorises),
-    # then the few pairs inside `far` are recomputed with their proper rule
+    # first the far value (moment_pair) for every pair (a branch-free loop the compiler
+    # vectorises), then the few pairs inside `far` are recomputed with their proper rule
     ck0, ck1, ck2, ak, rk = centroids[k, 0], centroids[k, 1], centroids[k, 2], areas[k], radii[k]
     for l in range(k + 1):
         a = ck0 - centroids[l, 0]
         b = ck1 - centroids[l, 1]
         c = ck2 - centroids[l, 2]
-        out[k, l] = ak * areas[l] / math.sqrt(a * a + b * b + c * c)
+        out[k, l] = ak * areas[l] * moment_pair(a, b, c, a * a + b * b + c * c, moments, k,
+                                                moments, l)
     far2 = far * far
     for l in range(k + 1):
         a = ck0 - centroids[l, 0]
@@ -279,7 +301,7 @@ def _fill_row(k, out, verts, normals, centroids, radii, areas,
         s = rk + radii[l]
         if a * a + b * b + c * c <= far2 * s * s:
             out[k, l] = panel_pair_integral(k, l, verts, normals, centroids, radii, areas,
-                                            pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid,
+                                            moments, pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid,
                                             self_s, self_w, touch, near, mid, far)
 
 
@@ -297,7 +319,7 @@ def _mirror_lower(out):
 
 
 @njit(parallel=True, cache=True)
-def assemble_dense(out, verts, normals, centroids, radii, areas,
+def assemble_dense(out, verts, normals, centroids, radii, areas, moments,
                    pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, self_s, self_w, touch, near, mid, far):
     """Fill out (n, n) with the Galerkin integrals of 1/|x - y| for every panel pair (m^3).
 
@@ -306,11 +328,11 @@ def assemble_dense(out, verts, normals, centroids, radii, areas,
     n = areas.shape[0]
     for i in prange((n + 1) // 2):
         i = np.int64(i)          # prange indices may be unsigned; keep index arithmetic signed
-        _fill_row(i, out, verts, normals, centroids, radii, areas,
+        _fill_row(i, out, verts, normals, centroids, radii, areas, moments,
                   pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, self_s, self_w, touch, near, mid, far)
         j = n - 1 - i
         if j != i:
-            _fill_row(j, out, verts, normals, centroids, radii, areas,
+            _fill_row(j, out, verts, normals, centroids, radii, areas, moments,
                       pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, self_s, self_w, touch, near, mid, far)
     _mirror_lower(out)
 

@@ -6,6 +6,7 @@ import numpy as np
 
 from bem3d.geometry import Panels
 from bem3d.pipeline import solve_panels
+from bem3d.quadrature import map_points, triangle_rule
 
 
 def make_panels(*parts):
@@ -53,6 +54,29 @@ def pair_rule_block(xa, wa, areas_a, xb, wb, areas_b):
         d = np.linalg.norm(xa[k][None, :, None, :] - xb[:, None, :, :], axis=-1)
         out[k] = np.einsum("p,q,npq->n", wa, wb, 1.0 / d)
     return out * areas_a[:, None] * areas_b[None, :]
+
+
+def covariances(vertices):
+    """Each panel's covariance about its centroid, the mean of (y - c)(y - c)^T (m, 3, 3), by
+    the degree-2 Stroud rule (exact for this quadratic integrand). Numpy."""
+    bary, w = triangle_rule(2)
+    y = map_points(vertices, bary)
+    dy = y - np.einsum("q,nqa->na", w, y)[:, None, :]
+    return np.einsum("q,nqa,nqb->nab", w, dy, dy)
+
+
+def moment_rule_block(centroids_a, cov_a, areas_a, centroids_b, cov_b, areas_b):
+    """A_k A_l (1/d + tr(H (Q_k + Q_l)) / 2), H = (3 R R^T - d^2 I) / d^5 the Hessian of 1/d at
+    R = c_k - c_l: the second-order Taylor expansion of the Galerkin integral of 1/|x - y|
+    about both centroids (the quadrupole term of the multipole expansion; Jackson 1999,
+    Classical Electrodynamics, 3rd ed., section 4.1). cov: covariances (n, 3, 3). Numpy."""
+    r = centroids_a[:, None, :] - centroids_b[None, :, :]
+    d2 = np.einsum("mna,mna->mn", r, r)
+    q = cov_a[:, None] + cov_b[None, :]
+    rqr = np.einsum("mna,mnab,mnb->mn", r, q, r)
+    tr = np.trace(q, axis1=2, axis2=3)
+    return (areas_a[:, None] * areas_b[None, :]
+            * (1.0 / np.sqrt(d2) + (3.0 * rqr - d2 * tr) / (2.0 * d2 ** 2.5)))
 
 
 def normal_field_block(x, w, normals, y, wy, areas_y):

@@ -13,9 +13,10 @@ import pytest
 from scipy import integrate
 
 from bem3d.geometry import Panels
-from bem3d.kernels import panel_pair_integral, triangle_potential
+from bem3d.kernels import moment_pair, panel_pair_integral, triangle_potential
 from bem3d.operators import PairRules, kernel_arguments
 from bem3d.quadrature import map_points, triangle_rule
+from conftest import covariances, pair_rule_block
 
 TRI = np.array([[0.0, 0.0, 0.0], [1.0, 0.0, 0.0], [0.3, 0.8, 0.0]])
 NORMAL = np.array([0.0, 0.0, 1.0])
@@ -138,3 +139,39 @@ def test_galerkin_pair_integrals_match_subdivided_reference(l, rel):
     got = panel_pair_integral(0, l, *args)
     assert got == pytest.approx(ref, rel=rel)
     assert panel_pair_integral(l, 0, *args) == pytest.approx(got, rel=1e-14)
+
+
+def test_panel_moments_are_the_covariances_about_the_centroids():
+    """Panels.moments (xx, yy, zz, xy, xz, yz) against the covariance integrated by the
+    degree-2 Stroud rule, exact for a quadratic integrand (Stroud 1971)."""
+    panels = pair_panels()
+    q = panels.moments[:, [0, 3, 4, 3, 1, 5, 4, 5, 2]].reshape(-1, 3, 3)
+    np.testing.assert_allclose(q, covariances(panels.vertices), atol=1e-15)
+
+
+def test_moment_rule_error_falls_with_the_cube_of_the_distance():
+    """The far value with the second-moment term (moment_pair) against the Galerkin integral by
+    the degree-8 product rule (Stroud 1971), a flat and a tilted panel at 6 to 48 times the sum
+    of their radii: the relative error falls by 8 per doubling, the size of the third-order
+    Taylor term left out (Jackson 1999, Classical Electrodynamics, 3rd ed., section 4.1), and is
+    over 20 times smaller than the plain centroid value's. Measured: 1.3e-5 at 6, 2.4e-8 at
+    48; centroid value 6.0e-4 at 6 (46 times more)."""
+    base = np.array([[0.0, 0, 0], [1, 0, 0], [0.2, 0.9, 0]])
+    tilted = np.array([[-0.4, -0.3, 0.0], [0.4, -0.2, 0.1], [-0.1, 0.4, -0.1]])
+    toward = np.array([0.6, 0.3, 0.74]) / np.linalg.norm([0.6, 0.3, 0.74])
+    reach = Panels(np.stack([base, tilted]), np.zeros(2, int), ("p",)).radii.sum()
+    bary, w = triangle_rule(8)
+    errors = []
+    for distance in (6, 12, 24, 48):
+        shift = base.mean(0) + distance * reach * toward - tilted.mean(0)
+        p = Panels(np.stack([base, tilted + shift]), np.zeros(2, int), ("p",))
+        pts = map_points(p.vertices, bary)
+        exact = pair_rule_block(pts[:1], w, p.areas[:1], pts[1:], w, p.areas[1:])[0, 0]
+        r = p.centroids[0] - p.centroids[1]
+        moment = moment_pair(r[0], r[1], r[2], r @ r, p.moments, 0, p.moments, 1)
+        errors.append(abs(p.areas[0] * p.areas[1] * moment / exact - 1))
+        plain = abs(p.areas[0] * p.areas[1] / np.linalg.norm(r) / exact - 1)
+        assert errors[-1] < plain / 20
+    assert errors[0] < 3e-5
+    rates = np.array(errors[:-1]) / np.array(errors[1:])
+    assert np.all((rates > 7) & (rates < 9.5))

@@ -8,7 +8,7 @@ from scipy.sparse.linalg import LinearOperator
 from ..constants import EPS0
 from ..errors import ResourceError
 from ..kernels import assemble_dense, subtract_images
-from . import PairRules, kernel_arguments
+from . import PairRules, image_arrays, kernel_arguments
 
 
 def dense_bytes(n_panels):
@@ -35,10 +35,7 @@ class DenseOperator(LinearOperator):
         assemble_dense(matrix, *args)
         if ground_z is not None:
             image = kernel_arguments(panels.mirrored(ground_z), rules)
-            # the image panels' corners, normals, centroids and rule points (their areas,
-            # radii and weights are the panels' own)
-            subtract_images(matrix, *args, image[0], image[1], image[2], image[5], image[7],
-                            image[9])
+            subtract_images(matrix, *args, *image_arrays(image))
         matrix *= 1.0 / (4.0 * math.pi * EPS0 * eps_r)
         self.matrix = matrix
         self.rules = rules

@@ -14,12 +14,12 @@ import numpy as np
 from numba import njit, prange
 from numba.extending import overload
 
-from ..kernels import (_pair, _point_pair_sum, normal_field_entry, panel_pair_integral,
-                       points_normal_field)
+from ..kernels import (_pair, _point_pair_sum, moment_pair, normal_field_entry,
+                       panel_pair_integral, points_normal_field)
 
 #: Length of the single-layer entry tuple (hmatrix.entry_arguments); the normal-field tuple
 #: (hfield.field_arguments) is shorter, which is how _entries tells them apart.
-SINGLE_LAYER_ARGUMENTS = 24
+SINGLE_LAYER_ARGUMENTS = 26
 
 #: Quadrature rules of a block's entries. PAIR_RULE: each pair by its own distance, as the
 #: dense backend does (kernels.panel_pair_integral). The others take one rule for every pair of
@@ -102,8 +102,8 @@ def _field_entries(i0, di, j0, dj, count, out, a, rule):
 
 
 @njit(cache=True, inline="always")
-def _rule_pair(i, j, rule, areas, centroids, pts_near, w_near, pts_mid, w_mid, o_centroids,
-               o_pts_near, o_pts_mid):
+def _rule_pair(i, j, rule, areas, centroids, moments, pts_near, w_near, pts_mid, w_mid,
+               o_centroids, o_moments, o_pts_near, o_pts_mid):
     # panel i against panel j (its own arrays o_*: the panels' or their mirror images') by
     # the block's rule
     aa = areas[i] * areas[j]
@@ -111,7 +111,8 @@ def _rule_pair(i, j, rule, areas, centroids, pts_near, w_near, pts_mid, w_mid, o
         a0 = centroids[i, 0] - o_centroids[j, 0]
         a1 = centroids[i, 1] - o_centroids[j, 1]
         a2 = centroids[i, 2] - o_centroids[j, 2]
-        return aa / math.sqrt(a0 * a0 + a1 * a1 + a2 * a2)
+        return aa * moment_pair(a0, a1, a2, a0 * a0 + a1 * a1 + a2 * a2, moments, i,
+                                o_moments, j)
     if rule == MID_RULE:
         return aa * _point_pair_sum(pts_mid[i], w_mid, o_pts_mid[j], w_mid)
     return aa * _point_pair_sum(pts_near[i], w_near, o_pts_near[j], w_near)
@@ -122,24 +123,24 @@ def _single_layer_entries(i0, di, j0, dj, count, out, a, rule):
     # out[t] = Galerkin integral of panels i0 + t di and j0 + t dj (m^3), t < count (a row of
     # a block for di = 0, a column for dj = 0), by the block's rule; PAIR_RULE computes
     # exactly what the dense backend does.
-    # a is entry_arguments(): operators.kernel_arguments, then the image panels' corners,
-    # normals, centroids and rule points and a flag; with the flag set the grounded plane's
+    # a is entry_arguments(): operators.kernel_arguments, then the image panels' arrays
+    # (operators.image_arrays) and a flag; with the flag set the grounded plane's
     # image term is subtracted as kernels.subtract_images does (an image lies no nearer to a
     # panel than its source, every conductor being above the plane, so the block's rule holds
     # for it too). The tuple is unpacked once here: reading arrays out of it inside the loop
     # would cost reference counting per entry.
-    (verts, normals, centroids, radii, areas, pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid,
-     self_s, self_w, touch, near, mid, far, i_verts, i_normals, i_centroids, i_pts_hi,
-     i_pts_near, i_pts_mid, image) = a
+    (verts, normals, centroids, radii, areas, moments, pts_hi, w_hi, pts_near, w_near, pts_mid,
+     w_mid, self_s, self_w, touch, near, mid, far, i_verts, i_normals, i_centroids, i_moments,
+     i_pts_hi, i_pts_near, i_pts_mid, image) = a
     if rule != PAIR_RULE:
         for t in range(count):
             i = i0 + t * di
             j = j0 + t * dj
-            v = _rule_pair(i, j, rule, areas, centroids, pts_near, w_near, pts_mid, w_mid,
-                           centroids, pts_near, pts_mid)
+            v = _rule_pair(i, j, rule, areas, centroids, moments, pts_near, w_near, pts_mid,
+                           w_mid, centroids, moments, pts_near, pts_mid)
             if image:
-                v -= _rule_pair(i, j, rule, areas, centroids, pts_near, w_near, pts_mid, w_mid,
-                                i_centroids, i_pts_near, i_pts_mid)
+                v -= _rule_pair(i, j, rule, areas, centroids, moments, pts_near, w_near,
+                                pts_mid, w_mid, i_centroids, i_moments, i_pts_near, i_pts_mid)
             out[t] = v
         return
     far2 = far * far
@@ -147,30 +148,30 @@ def _single_layer_entries(i0, di, j0, dj, count, out, a, rule):
         i = i0 + t * di
         j = j0 + t * dj
         s2 = far2 * (radii[i] + radii[j]) ** 2
-        # the one-point value beyond `far` inline, as kernels._fill_row does: the call below
+        # the far value beyond `far` inline, as kernels._fill_row does: the call below
         # costs ~50 times more (its array arguments are reference-counted on every call)
         a0 = centroids[i, 0] - centroids[j, 0]
         a1 = centroids[i, 1] - centroids[j, 1]
         a2 = centroids[i, 2] - centroids[j, 2]
         d2 = a0 * a0 + a1 * a1 + a2 * a2
         if d2 > s2:
-            v = areas[i] * areas[j] / math.sqrt(d2)
+            v = areas[i] * areas[j] * moment_pair(a0, a1, a2, d2, moments, i, moments, j)
         else:
-            v = panel_pair_integral(i, j, verts, normals, centroids, radii, areas, pts_hi, w_hi,
-                                    pts_near, w_near, pts_mid, w_mid, self_s, self_w, touch,
-                                    near, mid, far)
+            v = panel_pair_integral(i, j, verts, normals, centroids, radii, areas, moments,
+                                    pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, self_s,
+                                    self_w, touch, near, mid, far)
         if image:
             a0 = centroids[i, 0] - i_centroids[j, 0]
             a1 = centroids[i, 1] - i_centroids[j, 1]
             a2 = centroids[i, 2] - i_centroids[j, 2]
             d2 = a0 * a0 + a1 * a1 + a2 * a2
             if d2 > s2:
-                v -= areas[i] * areas[j] / math.sqrt(d2)
+                v -= areas[i] * areas[j] * moment_pair(a0, a1, a2, d2, moments, i, i_moments, j)
             else:
-                v -= _pair(i, j, verts, normals, centroids, radii, areas, pts_hi, pts_near,
-                           pts_mid, i_verts, i_normals, i_centroids, radii, areas, i_pts_hi,
-                           i_pts_near, i_pts_mid, w_hi, w_near, w_mid, self_s, self_w, touch,
-                           near, mid, far, False)
+                v -= _pair(i, j, verts, normals, centroids, radii, areas, moments, pts_hi,
+                           pts_near, pts_mid, i_verts, i_normals, i_centroids, radii, areas,
+                           i_moments, i_pts_hi, i_pts_near, i_pts_mid, w_hi, w_near, w_mid,
+                           self_s, self_w, touch, near, mid, far, False)
         out[t] = v
 
 

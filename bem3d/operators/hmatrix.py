@@ -21,7 +21,7 @@ from threadpoolctl import threadpool_limits
 from ..constants import EPS0
 from ..errors import ResourceError
 from ..geometry import Panels
-from . import PairRules, kernel_arguments
+from . import PairRules, image_arrays, kernel_arguments
 from . import hkernels
 from .cluster import ClusterTree, block_partition
 
@@ -61,14 +61,12 @@ class Compression:
 
 
 def entry_arguments(panels, rules, ground_z=None):
-    """The tuple hkernels' entry function takes: kernel_arguments of the panels, then the image
-    panels' corners, normals, centroids and touch/near/mid rule points in the plane
-    z = ground_z (m), and whether to use them (without a plane the panels' own arrays stand
-    in, unused)."""
+    """The tuple hkernels' entry function takes: kernel_arguments of the panels, then the
+    image_arrays of their mirror images in the plane z = ground_z (m), and whether to use them
+    (without a plane the panels' own arrays stand in, unused)."""
     args = kernel_arguments(panels, rules)
     image = args if ground_z is None else kernel_arguments(panels.mirrored(ground_z), rules)
-    return args + (image[0], image[1], image[2], image[5], image[7], image[9],
-                   ground_z is not None)
+    return args + image_arrays(image) + (ground_z is not None,)
 
 
 def _ranges(tree, pairs, columns=None):
@@ -95,7 +93,7 @@ def block_rules(blocks, kargs):
     """The quadrature rule of each admissible block (hkernels.block_rules), for the
     single-layer or the normal-field argument tuple kargs."""
     if len(kargs) == hkernels.SINGLE_LAYER_ARGUMENTS:
-        centroids, radii, near, mid, far = kargs[2], kargs[3], kargs[14], kargs[15], kargs[16]
+        centroids, radii, near, mid, far = kargs[2], kargs[3], kargs[15], kargs[16], kargs[17]
         return hkernels.block_rules(blocks, centroids[:, None, :], radii, centroids, radii,
                                     near, mid, far)
     points, centroids, radii, near, mid, far = (kargs[0], kargs[5], kargs[6], kargs[12],
