@@ -497,21 +497,25 @@ def _lowrank_product(f, off, r, r0, m, c0, n, x, y, t, symmetric):
 
 @njit(parallel=True, cache=True)
 def hmatrix_product(x, parts, dense_blocks, dense_offsets, dense_data, lr_blocks, lr_offsets,
-                    lr_ranks, lr_data, dense_groups, lr_groups, max_rank, symmetric):
+                    lr_ranks, lr_data, dense_order, lr_order, dense_groups, lr_groups, max_rank,
+                    symmetric):
     """parts[g] = the share of thread group g of (A x^T)^T, for x (nr, columns) in cluster
     numbering; parts (groups, nr, rows).
 
-    Group g takes dense blocks dense_groups[g]:dense_groups[g+1] and low-rank blocks
-    lr_groups[g]:lr_groups[g+1]; the caller sums parts. In a symmetric operator each stored
-    block off the diagonal also acts as its transpose."""
+    Blocks are visited in the orders dense_order and lr_order; group g takes the dense blocks
+    dense_order[dense_groups[g]:dense_groups[g+1]] and the low-rank blocks
+    lr_order[lr_groups[g]:lr_groups[g+1]]; the caller sums parts. In a symmetric operator
+    each stored block off the diagonal also acts as its transpose."""
     for g in prange(parts.shape[0]):
         y = parts[g]
         y[:] = 0.0
         t = np.empty((2, x.shape[0], max(max_rank, 1)))
-        for b in range(dense_groups[g], dense_groups[g + 1]):
+        for q in range(dense_groups[g], dense_groups[g + 1]):
+            b = dense_order[q]
             _dense_product(dense_data, dense_offsets[b], dense_blocks[b, 0], dense_blocks[b, 1],
                            dense_blocks[b, 2], dense_blocks[b, 3], x, y, symmetric)
-        for b in range(lr_groups[g], lr_groups[g + 1]):
+        for q in range(lr_groups[g], lr_groups[g + 1]):
+            b = lr_order[q]
             _lowrank_product(lr_data, lr_offsets[b], lr_ranks[b], lr_blocks[b, 0],
                              lr_blocks[b, 1], lr_blocks[b, 2], lr_blocks[b, 3], x, y, t,
                              symmetric)
