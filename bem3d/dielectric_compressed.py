@@ -74,9 +74,10 @@ class DielectricPlan:
         return self.single.work_bytes(n_rhs, self.subdomain_size) + field + gmres_vectors
 
 
-def _conductor_schwarz(operator, nc, max_size):
+def _conductor_schwarz(operator, areas, nc, max_size):
     # Schwarz on the subdomains inside the conductor half of the tree: that of P_cc alone
-    perm, bounds, offsets, inverses, coarse = operator.schwarz_parts(max_size, nc)
+    # (areas: of the panels in cluster numbering)
+    perm, bounds, offsets, inverses, coarse = operator.schwarz_parts(max_size, areas, nc)
     return SchwarzPreconditioner(perm[:nc], bounds, offsets, inverses, coarse,
                                  factor=1.0 / operator.scale)
 
@@ -93,7 +94,7 @@ def solve_planned(plan, volts=None, tol=1e-7, max_iterations=1000, memory_limit=
     field = None if plan.field is None else FieldOperator(plan.field, rest)
     assembly = time.perf_counter() - t0
     t0 = time.perf_counter()
-    schwarz = _conductor_schwarz(single, nc, plan.subdomain_size)
+    schwarz = _conductor_schwarz(single, plan.single.panels.areas, nc, plan.subdomain_size)
     scale = np.mean(single.diagonal()[:nc] / system.conductors.areas)
     weight = scale * system.interfaces.areas
     n = system.n_panels

@@ -7,7 +7,7 @@ import scipy.linalg
 import scipy.sparse
 
 from .operators.cluster import ClusterTree
-from .operators.hkernels import apply_subdomain_inverses
+from .operators.hkernels import apply_subdomain_inverses, zero_charge_inverse
 
 #: Iterations over which CG's energy-norm error is summed (the delay of the estimate).
 ESTIMATE_DELAY = 4
@@ -106,13 +106,21 @@ def _relative_residual(r, b):
 class SchwarzPreconditioner:
     """Two-level additive Schwarz preconditioner for the single-layer Galerkin matrix.
 
-    M^-1 = sum_d R_d^T P_dd^-1 R_d + R_0^T (R_0 P R_0^T)^-1 R_0: exact solves on subdomains
-    (clusters of the panel tree: block-Jacobi) plus a coarse space of one piecewise-constant
-    function per subdomain, which carries the smooth, global part of the charge that the local
-    solves cannot (Tran & Stephan 1996, Applicable Analysis 60, 63-84; Stephan 1998, additive
-    Schwarz methods for integral equations of the first kind). perm, bounds: subdomain d is
-    panels perm[bounds[d]:bounds[d+1]]; inverses[inverse_offsets[d]:] its P_dd^-1 row-major;
-    coarse (k, k) = R_0 P R_0^T."""
+    M^-1 = sum_d S_d + R_0^T (R_0 P R_0^T)^-1 R_0, on subdomains that are clusters of the panel
+    tree. The coarse space is one constant charge density per subdomain (R_0: the subdomain
+    indicators); each local space holds the subdomain's charges of zero total, so the local
+    and coarse spaces split the charges as a direct sum. S_d is the exact solve on that local
+    space (hkernels.zero_charge_inverse of the principal block P_dd). Charges of zero total
+    have a dipole's fast-decaying potential, so the local spaces barely couple; a subdomain's
+    net charge acts far away and is left to the coarse solve. Plain block-Jacobi solves on
+    whole subdomains count that far action in every subdomain again: the largest eigenvalue
+    of M^-1 P then grows like the number of subdomains across the model (measured on the
+    sensor head: 14, 25, 47 at 8k, 32k, 127k panels, 33 to 48 CG iterations), whereas with the
+    zero-charge local spaces it stays near 2.4 (22 to 25 iterations). The abstract theory is
+    that of stable splittings (Toselli & Widlund 2005, Domain Decomposition Methods,
+    Springer, ch. 2); for first-kind integral equations Tran & Stephan 1996 (Applicable
+    Analysis 60, 63-84). perm, bounds: subdomain d is panels perm[bounds[d]:bounds[d+1]];
+    inverses[inverse_offsets[d]:] its S_d row-major; coarse (k, k) = R_0 P R_0^T."""
 
     name = "schwarz"
     ARRAY_NAMES = ("schwarz_perm", "schwarz_bounds", "schwarz_inverse_offsets",
@@ -131,12 +139,15 @@ class SchwarzPreconditioner:
         (for its unscaled integrals, hence the factor); a dense one (with .matrix) is cut along
         a cluster tree of the panels."""
         if hasattr(operator, "schwarz_parts"):
-            return cls(*operator.schwarz_parts(max_size), factor=1.0 / operator.scale)
+            return cls(*operator.schwarz_parts(max_size, panels.areas[operator.perm]),
+                       factor=1.0 / operator.scale)
         tree = ClusterTree.build(panels.vertices, panels.centroids, max_size)
         bounds = tree.partition(max_size)
         sizes = np.diff(bounds)
-        inverses = np.concatenate([np.linalg.inv(operator.matrix[np.ix_(idx, idx)]).ravel()
-                                   for idx in np.split(tree.perm, bounds[1:-1])])
+        inverses = np.concatenate([
+            zero_charge_inverse(np.linalg.inv(operator.matrix[np.ix_(idx, idx)]),
+                                panels.areas[idx]).ravel()
+            for idx in np.split(tree.perm, bounds[1:-1])])
         domain = np.repeat(np.arange(len(sizes)), sizes)
         r0 = scipy.sparse.csr_matrix((np.ones(len(domain)), (domain, tree.perm)),
                                      shape=(len(sizes), len(domain)))

@@ -1,7 +1,8 @@
 """Conjugate gradients, its capacitance-error estimate, the Schwarz preconditioner, backend
 choice and the memory guard.
 
-References: Cholesky (scipy.linalg, LAPACK) for the exact solution of the same matrix; the
+References: Cholesky (scipy.linalg, LAPACK) for the exact solution of the same matrix and
+the eigenvalues behind condition numbers; the
 identity C - (B^T X + X^T R) = E^T P E for any approximate solution X (E = P^-1 B - X,
 R = B - P X; algebra), whose diagonal CG's energy-error estimate approximates (Strakoš &
 Tichý 2002, Electron. Trans. Numer. Anal. 13).
@@ -14,6 +15,7 @@ import scipy.linalg
 from bem3d import shapes
 from bem3d.errors import ModelError, ResourceError
 from bem3d.geometry import Panels
+from bem3d.operators.cluster import ClusterTree
 from bem3d.operators.dense import DenseOperator
 from bem3d.pipeline import choose_backend, solve_panels
 from bem3d.solve import ESTIMATE_DELAY, SchwarzPreconditioner, solve_cg
@@ -51,6 +53,49 @@ def test_schwarz_preconditioner_cuts_the_iterations(plates, system):
     for report in (jacobi, schwarz):
         np.testing.assert_allclose(report.charges, exact, rtol=0,
                                    atol=1e-6 * np.abs(exact).max())
+
+
+def textbook_schwarz(panels, matrix, size):
+    """The two-level additive Schwarz inverse of the textbook, in numpy: exact inverses of
+    the principal blocks of whole subdomains plus the coarse solve on subdomain constants
+    (Toselli & Widlund 2005, Domain Decomposition Methods, Springer, ch. 2)."""
+    tree = ClusterTree.build(panels.vertices, panels.centroids, size)
+    bounds = tree.partition(size)
+    minv = np.zeros_like(matrix)
+    r0 = np.zeros((len(bounds) - 1, len(panels)))
+    for d, idx in enumerate(np.split(tree.perm, bounds[1:-1])):
+        minv[np.ix_(idx, idx)] = np.linalg.inv(matrix[np.ix_(idx, idx)])
+        r0[d, idx] = 1.0
+    return minv + r0.T @ np.linalg.solve(r0 @ matrix @ r0.T, r0)
+
+
+def condition_number(matrix, minv):
+    """Spectral condition number of minv @ matrix (both SPD): eigenvalues of L^T P L for
+    minv = L L^T, by LAPACK (scipy.linalg)."""
+    lower = np.linalg.cholesky(0.5 * (minv + minv.T))
+    eigenvalues = scipy.linalg.eigvalsh(lower.T @ matrix @ lower)
+    return eigenvalues[-1] / eigenvalues[0]
+
+
+def test_zero_charge_local_spaces_keep_the_condition_number_flat():
+    """A graded plate under a graded box, 392 and 1,520 panels, subdomains of 32: with the
+    local solves on charges of zero total (SchwarzPreconditioner) the condition number of
+    M^-1 P stays put under refinement; with the textbook's whole-subdomain solves it doubles
+    with every halving of the panels. Measured: 7.6 and 8.7 against 15.9 and 30.9 (6,176
+    panels: 8.8 against 60.9)."""
+    kappas = {}
+    for m in (12, 24):
+        panels = make_panels(
+            ("plate", shapes.rectangle(1.0, 1.0, m, m, grading=0.6, center=(0, 0, 0))),
+            ("box", shapes.box(0.6, 0.4, 0.3, m // 3, grading=0.6, center=(0, 0, 0.5))))
+        operator = DenseOperator(panels)
+        ours = SchwarzPreconditioner.from_operator(operator, panels, 32)(np.eye(len(panels)))
+        textbook = textbook_schwarz(panels, operator.matrix, 32)
+        kappas[m] = (condition_number(operator.matrix, ours),
+                     condition_number(operator.matrix, textbook))
+    (ours_coarse, textbook_coarse), (ours_fine, textbook_fine) = kappas[12], kappas[24]
+    assert ours_fine < 1.3 * ours_coarse and textbook_fine > 1.6 * textbook_coarse
+    assert ours_fine < textbook_fine / 3
 
 
 def test_energy_stop_meets_the_capacitance_tolerance(plates, system):

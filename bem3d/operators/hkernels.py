@@ -521,12 +521,23 @@ def hmatrix_product(x, parts, dense_blocks, dense_offsets, dense_data, lr_blocks
                              symmetric)
 
 
+@njit(cache=True)
+def zero_charge_inverse(inv, areas):
+    """inv - (inv a)(a^T inv) / (a^T inv a), a = areas, for inv the inverse of a subdomain's
+    principal block: its solve restricted to charges of zero total, a . sigma = 0 (the
+    Lagrange multiplier of that constraint eliminated). Returned as a new array."""
+    w = inv @ areas
+    return inv - np.outer(w, areas @ inv) / np.dot(areas, w)
+
+
 @njit(parallel=True, cache=True)
-def subdomain_inverses(bounds, dense_ptr, dense_idx, dense_blocks, dense_offsets, dense_data,
-                       lr_ptr, lr_idx, lr_blocks, lr_offsets, lr_ranks, lr_data, inv_offsets, out):
-    """Inverse of every principal block P[a:b, a:b], a = bounds[d], b = bounds[d + 1] (cluster
-    numbering), written row-major to out[inv_offsets[d]:]. The stored blocks inside subdomain d
-    are dense_idx[dense_ptr[d]:dense_ptr[d + 1]] and lr_idx[lr_ptr[d]:lr_ptr[d + 1]]."""
+def subdomain_inverses(bounds, areas, dense_ptr, dense_idx, dense_blocks, dense_offsets,
+                       dense_data, lr_ptr, lr_idx, lr_blocks, lr_offsets, lr_ranks, lr_data,
+                       inv_offsets, out):
+    """The zero-charge inverse (zero_charge_inverse) of every principal block P[a:b, a:b],
+    a = bounds[d], b = bounds[d + 1] (cluster numbering; areas of the panels in that
+    numbering), written row-major to out[inv_offsets[d]:]. The stored blocks inside
+    subdomain d are dense_idx[dense_ptr[d]:dense_ptr[d + 1]] and lr_idx[lr_ptr[d]:]."""
     for d in prange(bounds.shape[0] - 1):
         a, size = bounds[d], bounds[d + 1] - bounds[d]
         sub = np.zeros((size, size))
@@ -547,7 +558,7 @@ def subdomain_inverses(bounds, dense_ptr, dense_idx, dense_blocks, dense_offsets
                      @ lr_data[off + m * r:off + (m + n) * r].reshape((n, r)).T)
             sub[r0 - a:r0 - a + m, c0 - a:c0 - a + n] += block
             sub[c0 - a:c0 - a + n, r0 - a:r0 - a + m] += block.T
-        inv = np.linalg.inv(sub)
+        inv = zero_charge_inverse(np.linalg.inv(sub), areas[a:a + size])
         out[inv_offsets[d]:inv_offsets[d] + size * size] = (0.5 * (inv + inv.T)).ravel()
 
 

@@ -363,14 +363,16 @@ class HMatrixOperator(BlockProducts, LinearOperator):
                 d[self.perm[r0:r0 + m]] = self.dense_data[off:off + m * m:m + 1]
         return self.scale * d
 
-    def schwarz_parts(self, max_size, leading=None):
+    def schwarz_parts(self, max_size, areas, leading=None):
         """Pieces of a two-level additive Schwarz preconditioner on clusters of <= max_size.
 
         Returns (perm, bounds, inverse_offsets, inverses, coarse) of the unscaled integrals
-        (P / scale): subdomain d is panels perm[bounds[d]:bounds[d+1]]; its principal block's
-        inverse (row-major) is at inverses[inverse_offsets[d]:]; coarse is R P R^T for the
-        subdomain indicators R. leading: cover only the first `leading` panels of the cluster
-        numbering (whole clusters of the tree): the preconditioner of that principal block."""
+        (P / scale): subdomain d is panels perm[bounds[d]:bounds[d+1]]; the zero-charge inverse
+        of its principal block (hkernels.zero_charge_inverse, areas: the panels' areas in
+        cluster numbering) is at inverses[inverse_offsets[d]:], row-major; coarse is R P R^T
+        for the subdomain indicators R. leading: cover only the first `leading` panels of the
+        cluster numbering (whole clusters of the tree): the preconditioner of that principal
+        block."""
         bounds = self.tree.partition(max_size)
         if leading is not None:
             bounds = bounds[:np.searchsorted(bounds, leading) + 1]
@@ -403,7 +405,7 @@ class HMatrixOperator(BlockProducts, LinearOperator):
         inv_offsets = np.concatenate(([0], np.cumsum(sizes * sizes))).astype(np.int64)
         inverses = np.empty(inv_offsets[-1])
         with threadpool_limits(limits=1, user_api="blas"):     # as in _compress
-            hkernels.subdomain_inverses(bounds, dense_ptr, dense_idx, dense_blocks,
+            hkernels.subdomain_inverses(bounds, areas, dense_ptr, dense_idx, dense_blocks,
                                         dense_offsets, self.dense_data, lr_ptr, lr_idx,
                                         lr_blocks, lr_offsets, lr_ranks, self.lr_data,
                                         inv_offsets, inverses)
