@@ -17,7 +17,7 @@ from pathlib import Path
 import numpy as np
 
 #: Bumped whenever the stored arrays change meaning, so that old entries are rebuilt.
-FORMAT = 4
+FORMAT = 5
 
 
 def default_folder():
