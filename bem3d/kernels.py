@@ -301,8 +301,8 @@ def _fill_row(k, out, verts, normals, centroids, radii, areas, moments,
         s = rk + radii[l]
         if a * a + b * b + c * c <= far2 * s * s:
             out[k, l] = panel_pair_integral(k, l, verts, normals, centroids, radii, areas,
-                                            moments, pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid,
-                                            self_s, self_w, touch, near, mid, far)
+                                            moments, pts_hi, w_hi, pts_near, w_near, pts_mid,
+                                            w_mid, self_s, self_w, touch, near, mid, far)
 
 
 @njit(parallel=True, cache=True)

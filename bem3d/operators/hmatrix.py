@@ -3,9 +3,9 @@
 Panels are clustered by bounding-box bisection; blocks of cluster pairs with
 min(diam) <= eta * dist are admissible and approximated by adaptive cross approximation with
 partial pivoting (Bebendorf 2000, Numer. Math. 86, 565-589) followed by QR/SVD recompression to
-the block tolerance, their entries all by the one point rule the dense backend would give the
-block's closest pair (hkernels.block_rules), so that they vary smoothly; all other blocks are
-leaves filled densely with the dense backend's pair integrals (Hackbusch 1999, Computing 62,
+the block tolerance, their entries all by the one quadrature rule the dense backend would
+give the block's closest pair (hkernels.block_rules), so that they vary smoothly; all other
+blocks are leaves filled densely with the dense backend's pair integrals (Hackbusch 1999, Computing 62,
 89-108; Börm, Grasedyck & Hackbusch 2003, Hierarchical matrices, lecture notes 21, MPI
 Leipzig). Storage and work grow like N log N.
 """
