@@ -1,3 +1,5 @@
 """bem3d: capacitance matrices and field energy of 3D conductors from surface meshes."""
 
-__version__ = "0.1.0"
+from bem3d.base.version import __version__
+
+__all__ = ["__version__"]

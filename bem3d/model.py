@@ -26,8 +26,8 @@ try:
 except ModuleNotFoundError:          # Python 3.10
     import tomli as tomllib
 
-from .constants import LENGTH_UNITS
-from .errors import ModelError
+from bem3d.base.constants import LENGTH_UNITS
+from bem3d.base.errors import ModelError
 
 #: Accepted relative permittivities: no passive medium has a static value below vacuum's 1, and
 #: the largest reported for bulk ceramics are of order 1e5 (common practice, no source).

@@ -4,7 +4,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from .units import format_quantity, prefix_for
+from bem3d.base.units import format_quantity, prefix_for
 
 
 def mutual_from_maxwell(maxwell):
@@ -31,7 +31,7 @@ class FieldSources:
 def potential_vector(names, volts, floating=()):
     """Potentials (V) of the conductors `names` from {name: V} (others at 0 V); ModelError if a
     name is no conductor or a floating conductor is given a potential."""
-    from .errors import ModelError
+    from bem3d.base.errors import ModelError
 
     for option, given in (("--volts", volts), ("--floating", floating)):
         unknown = sorted(set(given) - set(names))
@@ -52,7 +52,7 @@ def reduce_floating(result, floating):
     V_f = -C_ff^-1 C_ft V_t and the terminals' matrix C_tt - C_tf C_ff^-1 C_ft (a Schur
     complement of the Maxwell matrix); every terminal's unit charge pattern gains the charge
     its floating neighbours pick up."""
-    from .errors import ModelError
+    from bem3d.base.errors import ModelError
 
     unknown = sorted(set(floating) - set(result.names))
     if unknown:

@@ -4,9 +4,9 @@ import signal
 
 import numpy as np
 
-from bem3d.geometry import Panels
-from bem3d.pipeline import solve_panels
-from bem3d.quadrature import map_points, triangle_rule
+from bem3d.geometry.panels import Panels
+from bem3d.solve.conductors import solve_panels
+from bem3d.operators.quadrature import map_points, triangle_rule
 
 
 def make_panels(*parts):
@@ -29,7 +29,7 @@ def default_sigint():
 
 def run_cli(argv, capsys):
     """bem3d's main() on argv (paths allowed): (exit code, stdout, stderr)."""
-    from bem3d.cli import main
+    from bem3d._cli.main import main
 
     code = main([str(a) for a in argv])
     out, err = capsys.readouterr()

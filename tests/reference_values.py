@@ -17,7 +17,7 @@ import math
 
 import numpy as np
 
-from bem3d.constants import EPS0
+from bem3d.base.constants import EPS0
 
 __all__ = [
     "EPS0",

@@ -12,10 +12,10 @@ import math
 import numpy as np
 import pytest
 
-from bem3d import shapes
-from bem3d.geometry import Panels
-from bem3d.kernels import assemble_dense
-from bem3d.operators import PairRules, kernel_arguments
+from bem3d.geometry import shapes
+from bem3d.geometry.panels import Panels
+from bem3d.kernels.pairs import assemble_dense
+from bem3d.operators.rules import PairRules, kernel_arguments
 
 bempp = pytest.importorskip("bempp_cl.api")
 

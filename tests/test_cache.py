@@ -8,9 +8,9 @@ the run that filled the cache.
 import numpy as np
 import pytest
 
-from bem3d import shapes
-from bem3d.cache import OperatorCache, cache_key, default_folder
-from bem3d.pipeline import solve_panels
+from bem3d.geometry import shapes
+from bem3d.operators.cache import OperatorCache, cache_key, default_folder
+from bem3d.solve.conductors import solve_panels
 from conftest import make_panels
 
 

@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 
 import reference_values as ref
-from bem3d import shapes
+from bem3d.geometry import shapes
 from conftest import maxwell
 
 EPS0 = ref.EPS0

@@ -10,8 +10,8 @@ import numpy as np
 import pytest
 import reference_values as ref
 
-from bem3d import shapes
-from bem3d.constants import EPS0
+from bem3d.geometry import shapes
+from bem3d.base.constants import EPS0
 from conftest import run_cli as run
 
 pv = pytest.importorskip("pyvista")
@@ -188,7 +188,7 @@ def test_bad_input_gives_exit_2_one_line_and_no_files(tmp_path, capsys, argv, wo
 
 
 def test_console_script_exit_code_and_debug_traceback(tmp_path):
-    cmd = [sys.executable, "-m", "bem3d.cli", "extract", str(tmp_path / "none.stl")]
+    cmd = [sys.executable, "-m", "bem3d", "extract", str(tmp_path / "none.stl")]
     quiet = subprocess.run(cmd, capture_output=True, text=True)
     assert quiet.returncode == 2 and "Traceback" not in quiet.stderr
     loud = subprocess.run(cmd[:3] + ["--debug"] + cmd[3:], capture_output=True, text=True)

@@ -16,10 +16,10 @@ import numpy as np
 import pytest
 
 import reference_values as ref
-from bem3d import shapes
-from bem3d.converge import add_converge_parser, converge, richardson, run_converge, subdivide
-from bem3d.dielectric import DielectricBody
-from bem3d.meshio_io import mesh_summary
+from bem3d.geometry import shapes
+from bem3d.post.convergence import (add_converge_parser, converge, richardson, run_converge, subdivide)
+from bem3d.solve.dielectric import DielectricBody
+from bem3d.mesh_io.read import mesh_summary
 from conftest import make_panels
 
 SQUARE_PLATE = 0.3667892 * 4 * np.pi * ref.EPS0         # F per metre of side (Read 1997)

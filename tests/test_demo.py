@@ -6,7 +6,7 @@ import meshio
 import numpy as np
 
 from bem3d.demo import write_demo_mesh
-from bem3d.meshio_io import read_conductors
+from bem3d.mesh_io.read import read_conductors
 
 SHIPPED = Path(__file__).resolve().parent.parent / "meshes" / "sensor_head.msh"
 

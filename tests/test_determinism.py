@@ -18,8 +18,8 @@ import meshio
 import numpy as np
 import pytest
 
-from bem3d import shapes
-from bem3d.cli import main
+from bem3d.geometry import shapes
+from bem3d._cli.main import main
 
 #: Entries of result.json that measure the run rather than the result.
 RUN_FIGURES = {("timings_s",), ("solver", "peak_memory_MiB")}
@@ -97,7 +97,7 @@ def test_thread_count_does_not_change_the_result(tmp_path, solver):
         out = tmp_path / f"threads_{threads}"
         env = dict(os.environ, NUMBA_NUM_THREADS=threads, OMP_NUM_THREADS=threads,
                    OPENBLAS_NUM_THREADS=threads, MKL_NUM_THREADS=threads)
-        done = subprocess.run([sys.executable, "-m", "bem3d.cli", "extract", str(mesh),
+        done = subprocess.run([sys.executable, "-m", "bem3d", "extract", str(mesh),
                                "--solver", solver, "--quiet", "--out", str(out)],
                               env=env, capture_output=True, text=True)
         assert done.returncode == 0, done.stderr

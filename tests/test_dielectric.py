@@ -12,11 +12,11 @@ import numpy as np
 import pytest
 
 import reference_values as ref
-from bem3d import shapes
-from bem3d.dielectric import DielectricBody, solve_with_dielectrics
-from bem3d.errors import MeshError, ModelError
-from bem3d.geometry import Panels
-from bem3d.pipeline import solve_panels
+from bem3d.geometry import shapes
+from bem3d.solve.dielectric import DielectricBody, solve_with_dielectrics
+from bem3d.base.errors import MeshError, ModelError
+from bem3d.geometry.panels import Panels
+from bem3d.solve.conductors import solve_panels
 from conftest import make_panels
 
 EPS0 = ref.EPS0
@@ -96,7 +96,7 @@ def shelled_sphere():
 
 def test_field_in_and_around_a_dielectric_shell(shelled_sphere):
     # Gauss with D = eps E: inside the shell E = Q/(4 pi eps0 eps_r r^2), outside Q/(4 pi eps0 r^2)
-    from bem3d.fields import evaluate
+    from bem3d.operators.points import evaluate
 
     cond, shell, result = shelled_sphere
     src = result.sources
@@ -118,8 +118,10 @@ def test_field_in_and_around_a_dielectric_shell(shelled_sphere):
 
 def test_energy_balance_with_a_dielectric_shell(shelled_sphere):
     # 1/2 int E.D dV over all space equals 1/2 V^T C V (energy identity)
-    from bem3d.dielectric import medium_at
-    from bem3d.fields import Grid, energy_balance, evaluate
+    from bem3d.solve.dielectric import medium_at
+    from bem3d.post.grid import Grid
+    from bem3d.post.energy import energy_balance
+    from bem3d.operators.points import evaluate
 
     cond, shell, result = shelled_sphere
     src = result.sources

@@ -15,11 +15,13 @@ import pytest
 from scipy import integrate
 
 import reference_values as ref
-from bem3d import shapes
-from bem3d.fields import (Grid, conductor_forces, energy_balance, evaluate, surface_fields,
-                          virtual_work_force)
-from bem3d.kernels import triangle_integrals
-from bem3d.pipeline import solve_panels
+from bem3d.geometry import shapes
+from bem3d.post.grid import Grid
+from bem3d.post.fields import conductor_forces, surface_fields, virtual_work_force
+from bem3d.post.energy import energy_balance
+from bem3d.operators.points import evaluate
+from bem3d.kernels.pairs import triangle_integrals
+from bem3d.solve.conductors import solve_panels
 from conftest import make_panels
 
 EPS0 = ref.EPS0

@@ -34,13 +34,12 @@ import pytest
 from hypothesis import HealthCheck, event, given, settings
 from hypothesis import strategies as st
 
-from bem3d import shapes
-from bem3d.cli import main
+from bem3d.geometry import shapes
+from bem3d._cli.main import main
 from bem3d.model import PERMITTIVITY_RANGE
-from bem3d.constants import EPS0, LENGTH_UNITS
-from bem3d.export import spice_node
-from bem3d.meshio_io import (MAX_COORDINATE_M, MIN_ITEM_BYTES, MIN_MODEL_SIZE_M,
-                             read_conductors)
+from bem3d.base.constants import EPS0, LENGTH_UNITS
+from bem3d.export.records import spice_node
+from bem3d.mesh_io.read import MAX_COORDINATE_M, MIN_ITEM_BYTES, MIN_MODEL_SIZE_M, read_conductors
 
 try:
     import tomllib
@@ -816,7 +815,7 @@ def test_damaged_cache_entries_are_rebuilt_never_trusted(data):
     # A cache entry read back must be exactly the arrays stored under its key, or count as
     # missing and be deleted (so that it is rebuilt): damaged bytes must never become other
     # numbers, and an entry stored under another key must not be taken for this one.
-    from bem3d.cache import OperatorCache
+    from bem3d.operators.cache import OperatorCache
 
     with tempfile.TemporaryDirectory() as d:
         store = OperatorCache(d)
@@ -843,7 +842,7 @@ def test_damaged_cache_entries_are_rebuilt_never_trusted(data):
 def test_a_cache_entry_carrying_a_pickle_is_never_unpickled(tmp_path):
     # An object array is stored as a pickle; one whose unpickling would create a file is
     # planted as an entry. Loading must refuse it (plain arrays only) without running it.
-    from bem3d.cache import OperatorCache
+    from bem3d.operators.cache import OperatorCache
 
     marker = tmp_path / "code ran"
 
@@ -862,7 +861,7 @@ def test_a_cache_entry_carrying_a_pickle_is_never_unpickled(tmp_path):
 
 @pytest.mark.parametrize("flag", [0x01, 0x20])
 def test_a_cache_entry_with_damaged_zip_flags_is_rebuilt(tmp_path, flag):
-    from bem3d.cache import OperatorCache
+    from bem3d.operators.cache import OperatorCache
 
     store = OperatorCache(tmp_path)
     path = store.save("d" * 64, CACHED)

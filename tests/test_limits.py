@@ -15,9 +15,11 @@ from pathlib import Path
 import meshio
 import pytest
 
-from bem3d import safety, shapes
-from bem3d.errors import ResourceError
-from bem3d.meshio_io import read_conductors
+from bem3d.base import files
+from bem3d.solve import estimate
+from bem3d.geometry import shapes
+from bem3d.base.errors import ResourceError
+from bem3d.mesh_io.read import read_conductors
 from conftest import default_sigint, run_cli as run
 
 pytestmark = pytest.mark.filterwarnings("ignore::DeprecationWarning")
@@ -93,7 +95,7 @@ def test_a_run_that_does_not_fit_in_memory_is_refused(tmp_path, capsys, monkeypa
     # factor; with 100 KiB available the run falls back to the compressed backend, whose own
     # estimate does not fit either: refused before either backend assembles anything.
     mesh = write_sphere(tmp_path / "ball.obj", level=4)
-    monkeypatch.setattr("bem3d.pipeline.available_memory", lambda: 100 * 1024)
+    monkeypatch.setattr("bem3d.solve.conductors.available_memory", lambda: 100 * 1024)
     forbid(monkeypatch, "bem3d.operators.dense.DenseOperator.__init__", "dense assembly")
     forbid(monkeypatch, "bem3d.operators.hmatrix.HMatrixOperator.assemble", "compressed assembly")
     code, _, err = run(["extract", mesh, "--quiet", "--out", tmp_path / "o"], capsys)
@@ -105,7 +107,7 @@ def test_reader_refuses_a_header_that_does_not_fit_in_memory(tmp_path, capsys, m
     # A well-formed file is refused when the points and cells its header promises (24 bytes
     # each as read) exceed the share of memory a run may use; the reader is never called.
     mesh = write_sphere(tmp_path / "ball.ply", level=4)           # 66 vertices, 128 faces
-    monkeypatch.setattr("bem3d.safety.available_memory", lambda: 1024)
+    monkeypatch.setattr("bem3d.base.resources.available_memory", lambda: 1024)
     forbid(monkeypatch, "meshio.read", "reading")
     code, _, err = run(["extract", mesh, "--out", tmp_path / "o"], capsys)
     line = one_line(err)
@@ -119,41 +121,41 @@ def test_estimate_grows_with_the_work_and_shrinks_with_threads():
     # Pair integrals grow as N^2, a Cholesky factorisation as N^3/3 flops, a CG iteration as
     # the N^2 matrix streamed; field work as points times panels (definitions). Twice the
     # threads halve the parallel parts.
-    one = safety.estimate_seconds(1000, "direct", n_points=500, n_threads=1)
-    two = safety.estimate_seconds(2000, "direct", n_points=500, n_threads=1)
+    one = estimate.estimate_seconds(1000, "direct", n_points=500, n_threads=1)
+    two = estimate.estimate_seconds(2000, "direct", n_points=500, n_threads=1)
     assert two["assembly"] / one["assembly"] == pytest.approx(4)
     assert two["Cholesky"] / one["Cholesky"] == pytest.approx(8)
     assert two["fields"] / one["fields"] == pytest.approx(2)
-    cg = [safety.estimate_seconds(n, "cg", n_threads=1)["CG"] for n in (1000, 2000)]
+    cg = [estimate.estimate_seconds(n, "cg", n_threads=1)["CG"] for n in (1000, 2000)]
     assert cg[1] / cg[0] == pytest.approx(4)
-    threaded = safety.estimate_seconds(1000, "direct", n_points=500, n_threads=2)
+    threaded = estimate.estimate_seconds(1000, "direct", n_points=500, n_threads=2)
     for stage in ("assembly", "Cholesky", "fields"):
         assert threaded[stage] == pytest.approx(one[stage] / 2)
 
 
 def test_compressed_estimate_grows_as_n_log_n():
     # The hierarchical-matrix work grows as N log N (Hackbusch 1999, Computing 62, 89-108).
-    one, two = (safety.estimate_seconds(n, "cg", n_threads=1, backend="compressed")
+    one, two = (estimate.estimate_seconds(n, "cg", n_threads=1, backend="compressed")
                 for n in (2**16, 2**17))
     for stage in ("assembly", "CG"):
         assert two[stage] / one[stage] == pytest.approx(2 * 17 / 16)
 
 
 def test_estimate_is_announced_only_for_long_runs():
-    assert safety.describe_estimate({"assembly": 1.0}, n_threads=2) is None
-    line = safety.describe_estimate({"assembly": 100.0, "CG": 50.0}, n_threads=2)
+    assert estimate.describe_estimate({"assembly": 1.0}, n_threads=2) is None
+    line = estimate.describe_estimate({"assembly": 100.0, "CG": 50.0}, n_threads=2)
     assert line.startswith("estimated time: about 2.5 min (assembly 1.7 min, CG 50 s)")
     assert "on 2 threads" in line
 
 
 def test_long_run_prints_its_estimate_before_assembling(tmp_path, capsys, monkeypatch):
     mesh = write_sphere(tmp_path / "ball.obj", level=4)
-    monkeypatch.setattr(safety, "ANNOUNCE_SECONDS", 0.0)      # every run counts as long
+    monkeypatch.setattr(estimate, "ANNOUNCE_SECONDS", 0.0)      # every run counts as long
     code, _, err = run(["extract", mesh, "--out", tmp_path / "o"], capsys)
     lines = err.splitlines()
-    estimate = next(i for i, line in enumerate(lines) if line.startswith("estimated time"))
+    announced = next(i for i, line in enumerate(lines) if line.startswith("estimated time"))
     assembling = next(i for i, line in enumerate(lines) if line.startswith("assembling"))
-    assert code == 0 and estimate < assembling
+    assert code == 0 and announced < assembling
     code, _, err = run(["extract", mesh, "--quiet", "--out", tmp_path / "q"], capsys)
     assert code == 0 and "estimated" not in err
 
@@ -167,7 +169,7 @@ def interrupt(*args, **kwargs):
     raise KeyboardInterrupt
 
 
-@pytest.mark.parametrize("where", ["bem3d.pipeline.solve_direct", "bem3d.export.write_surface"])
+@pytest.mark.parametrize("where", ["bem3d.solve.conductors.solve_direct", "bem3d.export.outputs.write_surface"])
 def test_ctrl_c_leaves_no_files(tmp_path, capsys, monkeypatch, where):
     # Interrupted in the solve, or while writing (after result.json, the CSV and the SPICE
     # file were written): no output folder, no temporary file anywhere.
@@ -192,9 +194,9 @@ def test_ctrl_c_while_moving_outputs_into_place_waits_for_the_last_one(tmp_path,
             os.kill(os.getpid(), signal.SIGINT)
         real_replace(src, dst)
 
-    monkeypatch.setattr(safety.os, "replace", replace_and_interrupt)
+    monkeypatch.setattr(files.os, "replace", replace_and_interrupt)
     with pytest.raises(KeyboardInterrupt):
-        with safety.staged_outputs(out, inputs=[]) as stage:
+        with files.staged_outputs(out, inputs=[]) as stage:
             for name in ("a.txt", "b.txt", "c.txt"):
                 (stage / name).write_text(name)
     assert sorted(os.listdir(out)) == ["a.txt", "b.txt", "c.txt"]
@@ -204,7 +206,7 @@ def test_real_sigint_stops_a_running_extraction_cleanly(tmp_path):
     # A real Ctrl-C (SIGINT) sent once assembly has begun: exit 130, one line, no files.
     mesh = write_sphere(tmp_path / "ball.stl", level=24)               # 4,608 panels
     out = tmp_path / "o"
-    proc = subprocess.Popen([sys.executable, "-m", "bem3d.cli", "extract", str(mesh), "--out",
+    proc = subprocess.Popen([sys.executable, "-m", "bem3d", "extract", str(mesh), "--out",
                              str(out)], stderr=subprocess.PIPE, stdout=subprocess.DEVNULL,
                             text=True, preexec_fn=default_sigint)
     for line in proc.stderr:
@@ -220,12 +222,12 @@ def test_real_sigint_stops_a_running_extraction_cleanly(tmp_path):
 @pytest.mark.parametrize("backend", ["dense", "compressed"])
 def test_each_backend_refuses_before_assembling(monkeypatch, backend):
     # The Python API too: with 100 KiB available neither backend's estimate fits.
-    from bem3d.geometry import Panels
-    from bem3d.pipeline import solve_panels
+    from bem3d.geometry.panels import Panels
+    from bem3d.solve.conductors import solve_panels
 
     points, tris = shapes.octahedral_sphere(1.0, 4)
     panels = Panels(points[tris], [0] * len(tris), ("ball",))
-    monkeypatch.setattr("bem3d.pipeline.available_memory", lambda: 100 * 1024)
+    monkeypatch.setattr("bem3d.solve.conductors.available_memory", lambda: 100 * 1024)
     forbid(monkeypatch, "bem3d.operators.dense.DenseOperator.__init__", "dense assembly")
     forbid(monkeypatch, "bem3d.operators.hmatrix.HMatrixOperator.assemble", "compressed assembly")
     with pytest.raises(ResourceError, match="more than 60% of the"):
@@ -237,7 +239,7 @@ def test_dielectric_run_refuses_before_assembling(tmp_path, capsys, monkeypatch)
     points, tris = shapes.octahedral_sphere(2.0, 4)
     with contextlib.redirect_stderr(io.StringIO()):
         meshio.write(tmp_path / "shell.obj", meshio.Mesh(points, [("triangle", tris)]))
-    monkeypatch.setattr("bem3d.pipeline.available_memory", lambda: 100 * 1024)
+    monkeypatch.setattr("bem3d.solve.conductors.available_memory", lambda: 100 * 1024)
     forbid(monkeypatch, "bem3d.operators.dense.DenseOperator.__init__", "assembly")
     code, _, err = run(["extract", ball, "--dielectric", f"{tmp_path / 'shell.obj'}=4",
                         "--quiet", "--out", tmp_path / "o"], capsys)

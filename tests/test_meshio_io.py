@@ -10,10 +10,9 @@ import meshio
 import numpy as np
 import pytest
 
-from bem3d.errors import Bem3dError, MeshError, ModelError
-from bem3d.geometry import Panels
-from bem3d.meshio_io import (_triangle_distance, check_geometry, mesh_summary,
-                             read_conductors)
+from bem3d.base.errors import Bem3dError, MeshError, ModelError
+from bem3d.geometry.panels import Panels
+from bem3d.mesh_io.read import _triangle_distance, check_geometry, mesh_summary, read_conductors
 
 # Corner tetrahedron (0, e_x, e_y, e_z), faces oriented outward.
 TET_POINTS = np.array([[0, 0, 0], [1, 0, 0], [0, 1, 0], [0, 0, 1]], dtype=float)
@@ -402,7 +401,7 @@ def test_a_cavity_wall_faces_into_the_cavity(tmp_path):
     # A thick spherical shell: outer surface r = 2, cavity wall r = 1, both written facing away
     # from the centre. Out of the conductor's material means away from the centre outside and
     # towards it on the cavity wall.
-    from bem3d import shapes
+    from bem3d.geometry import shapes
 
     outer, inner = shapes.octahedral_sphere(2.0, 3), shapes.octahedral_sphere(1.0, 3)
     points, tris = shapes.merge(outer, inner)
@@ -419,7 +418,7 @@ def test_a_cavity_wall_faces_into_the_cavity(tmp_path):
 
 def test_an_open_sheet_keeps_the_orientation_most_panels_had(tmp_path):
     # Eight panels of a unit square in z = 0; three of them are written reversed.
-    from bem3d import shapes
+    from bem3d.geometry import shapes
 
     points, tris = shapes.rectangle(1.0, 1.0, 2, 2)
     tris = np.asarray(tris).copy()
@@ -524,7 +523,7 @@ def test_subnormal_coordinates_read_like_zeros(tmp_path):
 def test_thin_panels_are_reported_with_count_and_worst_location(tmp_path):
     # A unit square cut into 50 strips of 1 x 0.02, each split in two: longest edge
     # sqrt(1 + 0.02^2), height onto it 0.02 / that, so aspect (1 + 4e-4) / 0.02 = 50.02.
-    from bem3d import shapes
+    from bem3d.geometry import shapes
 
     points, tris = shapes.rectangle(1.0, 1.0, 1, 50)
     path = write(tmp_path / "strips.obj", np.asarray(points), [("triangle", np.asarray(tris))])
@@ -559,8 +558,8 @@ def test_check_mesh_shows_every_accuracy_warning(tmp_path, capsys):
     # Two strip-meshed plates 0.01 m apart (panels 1 m long, so the gap is far below their
     # size) in one file, grouped by their tags: check-mesh lists both kinds of concern and the
     # shape figures, and exits 0.
-    from bem3d import shapes
-    from bem3d.cli import main
+    from bem3d.geometry import shapes
+    from bem3d._cli.main import main
 
     points, tris = shapes.rectangle(1.0, 1.0, 1, 50)
     points = np.asarray(points)

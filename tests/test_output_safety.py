@@ -13,9 +13,9 @@ import os
 import meshio
 import pytest
 
-from bem3d import shapes
-from bem3d.errors import Bem3dError
-from bem3d.safety import STAGE_PREFIX
+from bem3d.geometry import shapes
+from bem3d.base.errors import Bem3dError
+from bem3d.base.files import STAGE_PREFIX
 from conftest import run_cli as run
 
 OUTPUTS = ["bem3d_capacitance.cir", "capacitance.csv", "result.json", "surface.vtp"]
@@ -167,7 +167,7 @@ def test_a_failed_run_leaves_no_trace(tmp_path, capsys, monkeypatch, existing, f
     a = write_sphere(tmp_path / "a.obj")
     b = write_sphere(tmp_path / "b.obj", center=(1.0 if failure == "mesh check" else 3.0, 0, 0))
     if failure == "writing":
-        monkeypatch.setattr("bem3d.export.write_csv", disk_full)
+        monkeypatch.setattr("bem3d.export.outputs.write_csv", disk_full)
     out = tmp_path / "nested" / "out"
     if existing:
         out.mkdir(parents=True)

@@ -11,8 +11,8 @@ import numpy as np
 import pytest
 from scipy.spatial.transform import Rotation
 
-from bem3d import shapes
-from bem3d.pipeline import solve_panels
+from bem3d.geometry import shapes
+from bem3d.solve.conductors import solve_panels
 from conftest import make_panels, maxwell
 
 

@@ -9,7 +9,7 @@ from math import factorial
 import numpy as np
 import pytest
 
-from bem3d.quadrature import map_points, triangle_rule
+from bem3d.operators.quadrature import map_points, triangle_rule
 
 
 def exact_mean(a, b, c):

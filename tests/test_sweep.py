@@ -19,13 +19,12 @@ import numpy as np
 import pytest
 from scipy.spatial.transform import Rotation
 
-from bem3d import shapes
-from bem3d.constants import EPS0
-from bem3d.errors import Bem3dError
+from bem3d.geometry import shapes
+from bem3d.base.constants import EPS0
+from bem3d.base.errors import Bem3dError
 from bem3d.model import Model
-from bem3d.pipeline import extract, solve_panels
-from bem3d.sweep import (add_sweep_parser, move_conductors, parse_entry, parse_move,
-                         parse_values, run_sweep)
+from bem3d.solve.conductors import extract, solve_panels
+from bem3d.post.sweep import (add_sweep_parser, move_conductors, parse_entry, parse_move, parse_values, run_sweep)
 from conftest import default_sigint, make_panels
 
 PLATE = dict(lx=1.0, ly=1.0, nx=8, ny=8, grading=0.5)      # 128 panels
@@ -33,7 +32,7 @@ GAP0 = 0.1                                                  # mm, top plate's he
 
 SCRIPT = """
 import argparse, sys
-from bem3d.sweep import add_sweep_parser, run_sweep
+from bem3d.post.sweep import add_sweep_parser, run_sweep
 if __name__ == "__main__":
     parser = argparse.ArgumentParser(prog="bem3d")
     add_sweep_parser(parser.add_subparsers(dest="command"))

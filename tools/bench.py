@@ -22,8 +22,8 @@ from pathlib import Path
 
 import meshio
 
-from bem3d import shapes
-from bem3d.constants import EPS0
+from bem3d.geometry import shapes
+from bem3d.base.constants import EPS0
 
 EXACT = 4 * math.pi * EPS0
 
@@ -73,7 +73,7 @@ def timed(cmd, env=None):
 
 
 def bem3d_run(mesh, out, env):
-    wall, _ = timed([sys.executable, "-m", "bem3d.cli", "extract", str(mesh), "--out", str(out),
+    wall, _ = timed([sys.executable, "-m", "bem3d", "extract", str(mesh), "--out", str(out),
                      "--backend", "dense", "--quiet"], env)
     record = json.loads((out / "result.json").read_text())
     return wall, record

@@ -15,11 +15,11 @@ import time
 
 import numpy as np
 
-from bem3d import shapes
-from bem3d.constants import EPS0
-from bem3d.fields import evaluate
-from bem3d.geometry import Panels
-from bem3d.pipeline import solve_panels
+from bem3d.geometry import shapes
+from bem3d.base.constants import EPS0
+from bem3d.operators.points import evaluate
+from bem3d.geometry.panels import Panels
+from bem3d.solve.conductors import solve_panels
 
 
 def main(argv=None):

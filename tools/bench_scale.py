@@ -36,16 +36,17 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 from bench import BEMPP_SCRIPT  # noqa: E402
-from bem3d import demo, shapes  # noqa: E402
-from bem3d.constants import EPS0  # noqa: E402
+from bem3d import demo
+from bem3d.geometry import shapes
+from bem3d.base.constants import EPS0
 
 SPHERE_EXACT = 4 * math.pi * EPS0          # unit sphere, F
 
 RUN_SCRIPT = r"""
 import json, resource, sys, time
 start = time.perf_counter()
-from bem3d.meshio_io import read_conductors
-from bem3d.pipeline import solve_panels
+from bem3d.mesh_io.read import read_conductors
+from bem3d.solve.conductors import solve_panels
 mesh, backend, cache_dir, units = sys.argv[1:5]
 panels, _ = read_conductors([mesh], units=units)
 r = solve_panels(panels, backend=backend, cache=True, cache_dir=cache_dir)

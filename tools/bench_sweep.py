@@ -23,8 +23,8 @@ from pathlib import Path
 
 import meshio
 
-from bem3d import shapes
-from bem3d.sweep import add_sweep_parser, available_cores, run_sweep
+from bem3d.geometry import shapes
+from bem3d.post.sweep import add_sweep_parser, available_cores, run_sweep
 
 
 def sweep(argv):

@@ -5,10 +5,10 @@ import math
 import numpy as np
 from scipy.sparse.linalg import LinearOperator
 
-from ..constants import EPS0
-from ..errors import ResourceError
-from ..kernels import assemble_dense, subtract_images
-from . import PairRules, image_arrays, kernel_arguments
+from bem3d.base.constants import EPS0
+from bem3d.base.errors import ResourceError
+from bem3d.kernels.pairs import assemble_dense, subtract_images
+from bem3d.operators.rules import PairRules, image_arrays, kernel_arguments
 
 
 def dense_bytes(n_panels):

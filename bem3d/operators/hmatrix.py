@@ -18,12 +18,12 @@ import numpy as np
 from scipy.sparse.linalg import LinearOperator
 from threadpoolctl import threadpool_limits
 
-from ..constants import EPS0
-from ..errors import ResourceError
-from ..geometry import Panels
-from . import PairRules, image_arrays, kernel_arguments
-from . import hkernels
-from .cluster import ClusterTree, block_partition
+from bem3d.base.constants import EPS0
+from bem3d.base.errors import ResourceError
+from bem3d.geometry.panels import Panels
+from bem3d.operators.rules import PairRules, image_arrays, kernel_arguments
+from bem3d.kernels import blocks as hkernels
+from bem3d.operators.cluster import ClusterTree, block_partition
 
 #: Room (float64 numbers) for the ACA factors of one batch of admissible blocks.
 BATCH_NUMBERS = 2**24

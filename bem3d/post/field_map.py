@@ -8,14 +8,18 @@ from pathlib import Path
 
 import numpy as np
 
-from .constants import EPS0
-from .dielectric import medium_at
-from .errors import ModelError, ResourceError
-from .export import (atomic_path, surface_polydata, write_image, write_outputs,
-                     write_point_table, write_slice)
-from .fields import (Grid, conductor_forces, energy_balance, evaluate, peak_fields,
-                     surface_fields)
-from .meshio_io import closed_conductors
+from bem3d.base.constants import EPS0
+from bem3d.solve.dielectric import medium_at
+from bem3d.base.errors import ModelError, ResourceError
+from bem3d.base.files import atomic_path
+from bem3d.export.vtk import surface_polydata, write_image, write_slice
+from bem3d.export.outputs import write_outputs
+from bem3d.export.records import write_point_table
+from bem3d.post.grid import Grid
+from bem3d.post.fields import conductor_forces, peak_fields, surface_fields
+from bem3d.post.energy import energy_balance
+from bem3d.operators.points import evaluate
+from bem3d.mesh_io.read import closed_conductors
 
 #: Largest number of grid points a run may ask for (each point costs ~100 bytes per excitation).
 MAX_GRID_POINTS = 20_000_000
@@ -265,7 +269,7 @@ def _pictures(panels, result, folder, first_slice, problems):
     warning, not a failed run (the numbers are already written)."""
     import pyvista as pv
 
-    from .pictures import render_slice, render_surface_charge
+    from bem3d.export.pictures import render_slice, render_surface_charge
 
     surface = surface_polydata(panels, {})
     slice_path, axis, arrays = first_slice

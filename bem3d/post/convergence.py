@@ -9,7 +9,6 @@ panels on a smooth body. The error estimate is |extrapolated - finest|, the esti
 the finest mesh's value; when the order is steady the extrapolated value is closer than that.
 """
 
-import argparse
 import csv
 import dataclasses
 import io
@@ -23,11 +22,12 @@ import numpy as np
 from scipy.sparse import coo_matrix
 from scipy.sparse.csgraph import connected_components
 
-from .errors import ModelError
-from .export import atomic_path, write_outputs
-from .geometry import Panels
-from .operators import PairRules
-from .units import prefix_for
+from bem3d.base.errors import ModelError
+from bem3d.base.files import atomic_path
+from bem3d.export.outputs import write_outputs
+from bem3d.geometry.panels import Panels
+from bem3d.operators.rules import PairRules
+from bem3d.base.units import prefix_for
 
 #: Observed orders in this band are those of flat panels on smooth bodies.
 SMOOTH_ORDER = (1.5, 2.5)
@@ -229,8 +229,8 @@ def converge(panels, refinements=2, smooth=True, crease_degrees=CREASE_DEGREES, 
     volts, eps_r, solver, tol, ground_z (m), floating, dielectrics: as for
     pipeline.solve_panels; the dielectric bodies' meshes are refined with the conductors'.
     source: the file name(s) that geometry errors of the refined meshes start with."""
-    from .meshio_io import check_geometry
-    from .pipeline import solve_panels
+    from bem3d.mesh_io.read import check_geometry
+    from bem3d.solve.conductors import solve_panels
 
     if refinements not in (1, 2):
         raise ValueError("refinements must be 1 or 2")
@@ -260,7 +260,7 @@ def converge(panels, refinements=2, smooth=True, crease_degrees=CREASE_DEGREES, 
 
 def add_converge_parser(subparsers):
     """Add the 'converge' command to the CLI's subparsers."""
-    from .cli import add_model_options
+    from bem3d._cli.options import add_model_options
 
     p = subparsers.add_parser(
         "converge", help="refine the mesh and extrapolate the capacitances (Richardson)",
@@ -312,9 +312,9 @@ def write_convergence(conv, folder):
 
 def run_converge(args):
     """The 'converge' command: exit code 0; bad input raises Bem3dError."""
-    from .cli import model_from_args
-    from .meshio_io import read_conductors
-    from .pipeline import read_dielectrics
+    from bem3d._cli.options import model_from_args
+    from bem3d.mesh_io.read import read_conductors
+    from bem3d.solve.conductors import read_dielectrics
 
     if not 0.0 < args.crease_angle < 180.0:
         raise ModelError(f"--crease-angle must be between 0 and 180 degrees, got "

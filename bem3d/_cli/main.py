@@ -9,67 +9,10 @@ from pathlib import Path
 
 import numpy as np
 
-from .constants import LENGTH_UNITS
-from .errors import Bem3dError, ModelError
-
-EXIT_BAD_INPUT = 2
-
-
-def add_model_options(p):
-    p.add_argument("inputs", nargs="+", metavar="INPUT",
-                   help="mesh files (one conductor per file, or groups within one file) "
-                        "or one TOML model file")
-    p.add_argument("--units", help="length unit of the meshes: m, cm, mm, um, in, mil (default m)")
-    p.add_argument("--volts", nargs="+", metavar="NAME=V", default=[],
-                   help="conductor potentials in volts; unlisted conductors are at 0 V")
-    p.add_argument("--eps-r", type=float, help="relative permittivity of the background medium")
-    p.add_argument("--out", type=Path, help="output folder (default: <first input>_result)")
-    p.add_argument("--ground-plane", type=float, metavar="Z",
-                   help="infinite grounded plane z = Z (mesh unit), by the method of images")
-    p.add_argument("--floating", action="append", default=[], metavar="NAME",
-                   help="a conductor with zero net charge and unknown potential; repeatable")
-    p.add_argument("--dielectric", action="append", default=[], metavar="FILE=EPS_R",
-                   help="a closed dielectric body (mesh file) and its relative permittivity; "
-                        "repeatable")
-
-
-def _add_run_guards(p):
-    p.add_argument("--force", action="store_true",
-                   help="replace the results of an earlier run in the output folder")
-    p.add_argument("--max-panels", type=int, metavar="N",
-                   help="refuse a model of more than N panels (conductors and dielectric "
-                        "bodies) before any assembly")
-
-
-def _add_solver_options(p):
-    p.add_argument("--backend", choices=["auto", "dense", "compressed"], default="auto",
-                   help="dense matrix, compressed hierarchical matrix, or auto: compressed above "
-                        "6,000 panels or when dense would not fit in memory")
-    p.add_argument("--solver", choices=["auto", "direct", "cg"], default="auto",
-                   help="direct (Cholesky, dense only), cg (conjugate gradients) or auto by size")
-    p.add_argument("--tol", type=float, default=1e-7,
-                   help="CG relative residual (default 1e-7); mutual capacitances settle to "
-                        "about this relative accuracy, self capacitances to better")
-    p.add_argument("--block-tol", type=float, default=1e-5,
-                   help="compressed backend: relative accuracy of each low-rank block "
-                        "(default 1e-5)")
-    p.add_argument("--cache-dir", type=Path,
-                   help="where the compressed backend keeps assembled operators (default "
-                        "$BEM3D_CACHE_DIR, else ~/.cache/bem3d)")
-    p.add_argument("--no-cache", action="store_true",
-                   help="neither read nor write the operator cache")
-
-
-def _solver_options(args):
-    """The solve settings of extract and field, as keyword arguments of pipeline.solve_panels."""
-    from .operators.hmatrix import Compression
-
-    for name, value in (("--tol", args.tol), ("--block-tol", args.block_tol)):
-        if not 0 < value < 1:
-            raise ModelError(f"{name} must lie between 0 and 1, got {value:g}")
-    return {"backend": args.backend, "solver": args.solver, "tol": args.tol,
-            "compression": Compression(tolerance=args.block_tol), "cache": not args.no_cache,
-            "cache_dir": args.cache_dir}
+from bem3d.base.constants import LENGTH_UNITS
+from bem3d._cli.options import (add_model_options, add_run_guards, add_solver_options,
+                                model_from_args, solver_options)
+from bem3d.base.errors import Bem3dError, ModelError
 
 
 class _Parser(argparse.ArgumentParser):
@@ -88,15 +31,15 @@ def _parser():
 
     p = sub.add_parser("extract", help="compute the capacitance matrices")
     add_model_options(p)
-    _add_run_guards(p)
-    _add_solver_options(p)
+    add_run_guards(p)
+    add_solver_options(p)
     p.add_argument("--quiet", action="store_true", help="print nothing but errors")
 
     p = sub.add_parser("field", help="capacitance plus potential, field and energy density "
                                      "on a grid, slices and points")
     add_model_options(p)
-    _add_run_guards(p)
-    _add_solver_options(p)
+    add_run_guards(p)
+    add_solver_options(p)
     p.add_argument("--box", type=float, nargs=6, metavar=("XMIN", "YMIN", "ZMIN", "XMAX", "YMAX", "ZMAX"),
                    help="field box in the mesh unit (default: the model's box plus a margin)")
     p.add_argument("--margin", type=float, default=0.5,
@@ -124,34 +67,11 @@ def _parser():
     p.add_argument("--units", default="m", help="length unit of the meshes (default m)")
     p.add_argument("--json", action="store_true", help="print the report as JSON")
 
-    from . import converge, sweep
+    from bem3d.post import convergence as converge
+    from bem3d.post import sweep
     sweep.add_sweep_parser(sub)
     converge.add_converge_parser(sub)
     return parser
-
-
-def model_from_args(args):
-    from .model import Model, load_model, parse_dielectrics, parse_volts
-
-    if len(args.inputs) == 1 and args.inputs[0].lower().endswith(".toml"):
-        model = load_model(args.inputs[0])
-    else:
-        model = Model(meshes=args.inputs, length_unit=args.units or "m")
-    if args.units:
-        model.length_unit = args.units
-    if args.eps_r is not None:
-        model.relative_permittivity = args.eps_r
-    model.volts.update(parse_volts(args.volts))
-    if args.ground_plane is not None:
-        model.ground_plane_z = args.ground_plane
-    model.floating += args.floating
-    model.dielectrics += parse_dielectrics(args.dielectric)
-    if args.out:
-        model.output_folder = args.out
-    if model.output_folder is None:
-        model.output_folder = Path(f"{Path(args.inputs[0]).stem}_result")
-    model.__post_init__()                  # validate the merged settings
-    return model
 
 
 def _inputs(model, *extra):
@@ -163,8 +83,8 @@ def _inputs(model, *extra):
 def _count_panels(model, max_panels, quiet):
     """Panels of the model's conductors and dielectric bodies, refused above max_panels before
     anything is assembled; None when neither the limit nor a time estimate needs the count."""
-    from .meshio_io import read_conductors
-    from .safety import check_panel_count
+    from bem3d.mesh_io.read import read_conductors
+    from bem3d.base.resources import check_panel_count
 
     if max_panels is None and quiet:
         return None
@@ -180,9 +100,9 @@ def _count_panels(model, max_panels, quiet):
 
 def _announce(n_panels, options, quiet, n_points=0, excitations=1):
     """Print the time estimate of a run expected to be long, before it starts."""
-    from .pipeline import choose_backend
-    from .resources import available_memory
-    from .safety import describe_estimate, estimate_seconds
+    from bem3d.solve.conductors import choose_backend
+    from bem3d.base.resources import available_memory
+    from bem3d.solve.estimate import describe_estimate, estimate_seconds
 
     if quiet or n_panels is None:
         return
@@ -208,9 +128,10 @@ def _solver_line(solver):
 
 
 def _run_extract(model, options, quiet=False, force=False, max_panels=None):
-    from .export import CAUTION, output_names, write_outputs
-    from .pipeline import extract
-    from .safety import check_output_folder, staged_outputs
+    from bem3d.export.records import CAUTION
+    from bem3d.export.outputs import output_names, write_outputs
+    from bem3d.solve.conductors import extract
+    from bem3d.base.files import check_output_folder, staged_outputs
 
     inputs = _inputs(model)
     check_output_folder(model.output_folder, inputs, output_names(model), force)
@@ -235,8 +156,8 @@ def _run_extract(model, options, quiet=False, force=False, max_panels=None):
 
 
 def _field_request(args, model):
-    from .constants import LENGTH_UNITS
-    from .field_map import FieldRequest
+    from bem3d.base.constants import LENGTH_UNITS
+    from bem3d.post.field_map import FieldRequest
 
     scale = LENGTH_UNITS[model.length_unit]
     slices = []
@@ -262,12 +183,12 @@ def _field_request(args, model):
 def _run_field(model, request, options, quiet=False, force=False, max_panels=None):
     from dataclasses import replace
 
-    from .export import output_names
-    from .field_map import AIR_BREAKDOWN_V_PER_M, FIELD_CAUTION, map_fields
-    from .meshio_io import read_conductors
-    from .pipeline import read_dielectrics, solve_panels
-    from .safety import check_output_folder, staged_outputs
-    from .units import format_quantity
+    from bem3d.export.outputs import output_names
+    from bem3d.post.field_map import AIR_BREAKDOWN_V_PER_M, FIELD_CAUTION, map_fields
+    from bem3d.mesh_io.read import read_conductors
+    from bem3d.solve.conductors import read_dielectrics, solve_panels
+    from bem3d.base.files import check_output_folder, staged_outputs
+    from bem3d.base.units import format_quantity
 
     inputs = _inputs(model, *([request.point_file] if request.point_file else []))
     check_output_folder(model.output_folder, inputs, output_names(model), force)
@@ -320,7 +241,7 @@ def _run_field(model, request, options, quiet=False, force=False, max_panels=Non
 
 
 def _check_mesh(args):
-    from .meshio_io import mesh_summary, read_conductors
+    from bem3d.mesh_io.read import mesh_summary, read_conductors
 
     panels, warnings = read_conductors(args.inputs, units=args.units, check=False)
     report = mesh_summary(panels, source=args.inputs if len(args.inputs) > 1 else args.inputs[0])
@@ -328,7 +249,7 @@ def _check_mesh(args):
     if args.json:
         print(json.dumps(report, indent=2))
     else:
-        from .units import format_quantity
+        from bem3d.base.units import format_quantity
         print(f"panels: {report['panels']}")
         for c in report["conductors"]:
             closed = "closed" if c["boundary_edges"] == 0 else f"open, {c['boundary_edges']} boundary edges"
@@ -353,10 +274,10 @@ def _check_mesh(args):
 
 
 def _demo(args):
-    from . import demo
-    from .export import output_names
-    from .model import Model
-    from .safety import check_output_folder
+    from bem3d import demo
+    from bem3d.export.outputs import output_names
+    from bem3d.model import Model
+    from bem3d.base.files import check_output_folder
 
     folder = args.folder
     mesh = folder / "sensor_head.msh"
@@ -366,7 +287,7 @@ def _demo(args):
     demo.write_demo_mesh(mesh)
     print(f"demo: capacitive sensor head (two sense pads, drive pad, guard ring, lid); "
           f"drive at {demo.VOLTS['drive']:g} V, others at 0 V")
-    from .field_map import FieldRequest
+    from bem3d.post.field_map import FieldRequest
 
     # the board face z = 0 carries the pads: slice just above it, between grid planes
     _run_field(model, FieldRequest(slices=[(2, demo.SLICE_Z_MM * 1e-3)], png=True),
@@ -379,16 +300,17 @@ def main(argv=None):
     args = _parser().parse_args(argv)
     try:
         if args.command == "extract":
-            _run_extract(model_from_args(args), _solver_options(args), quiet=args.quiet,
+            _run_extract(model_from_args(args), solver_options(args), quiet=args.quiet,
                          force=args.force, max_panels=args.max_panels)
             return 0
         if args.command == "field":
             model = model_from_args(args)
-            _run_field(model, _field_request(args, model), _solver_options(args),
+            _run_field(model, _field_request(args, model), solver_options(args),
                        quiet=args.quiet, force=args.force, max_panels=args.max_panels)
             return 0
         if args.command in ("sweep", "converge"):
-            from . import converge, sweep
+            from bem3d.post import convergence as converge
+            from bem3d.post import sweep
             return sweep.run_sweep(args) if args.command == "sweep" else converge.run_converge(args)
         if args.command == "check-mesh":
             return _check_mesh(args)
@@ -403,5 +325,4 @@ def main(argv=None):
         return 130
 
 
-if __name__ == "__main__":
-    sys.exit(main())
+EXIT_BAD_INPUT = 2

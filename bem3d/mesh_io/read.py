@@ -42,10 +42,10 @@ from scipy.sparse import coo_matrix
 from scipy.sparse.csgraph import breadth_first_order, connected_components
 from scipy.spatial import cKDTree
 
-from .constants import LENGTH_UNITS
-from .errors import MeshError, ModelError
-from .geometry import Panels
-from .safety import check_panel_count, require_memory
+from bem3d.base.constants import LENGTH_UNITS
+from bem3d.base.errors import MeshError, ModelError
+from bem3d.geometry.panels import Panels
+from bem3d.base.resources import check_panel_count, require_memory
 
 #: Cell-data arrays that may assign panels to conductors, in order of preference (compared
 #: case-insensitively). ``gmsh:geometrical`` is left out on purpose: it numbers CAD surfaces, so

@@ -24,15 +24,15 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.linalg
 
-from .errors import MeshError, ModelError
-from .fields import winding_numbers
-from .geometry import Panels
-from .kernels import assemble_normal_field
-from .meshio_io import closed_conductors
-from .operators import PairRules
-from .operators.dense import DenseOperator, dense_bytes
-from .quadrature import graded_rule, map_points, triangle_rule
-from .results import CapacitanceResult, FieldSources, potential_vector
+from bem3d.base.errors import MeshError, ModelError
+from bem3d.operators.points import winding_numbers
+from bem3d.geometry.panels import Panels
+from bem3d.kernels.pairs import assemble_normal_field
+from bem3d.mesh_io.read import closed_conductors
+from bem3d.operators.rules import PairRules
+from bem3d.operators.dense import DenseOperator, dense_bytes
+from bem3d.operators.quadrature import graded_rule, map_points, triangle_rule
+from bem3d.results import CapacitanceResult, FieldSources, potential_vector
 
 
 #: Test points per direction of the graded rule on each interface panel (6 x 6 = 36).

@@ -6,14 +6,15 @@ import time
 import numpy as np
 from threadpoolctl import threadpool_limits
 
-from .cache import OperatorCache, cache_key
-from .errors import ModelError, ResourceError
-from .operators import PairRules
-from .operators.dense import DenseOperator, dense_bytes
-from .operators.hmatrix import Compression, HMatrixOperator, HMatrixPlan
-from .resources import available_memory, peak_memory
-from .results import CapacitanceResult, potential_vector, reduce_floating
-from .solve import SchwarzPreconditioner, solve_cg, solve_direct
+from bem3d.operators.cache import OperatorCache, cache_key
+from bem3d.base.errors import ModelError, ResourceError
+from bem3d.operators.rules import PairRules
+from bem3d.operators.dense import DenseOperator, dense_bytes
+from bem3d.operators.hmatrix import Compression, HMatrixOperator, HMatrixPlan
+from bem3d.base.resources import available_memory, peak_memory
+from bem3d.results import CapacitanceResult, potential_vector, reduce_floating
+from bem3d.solve.schwarz import SchwarzPreconditioner
+from bem3d.solve.krylov import solve_cg, solve_direct
 
 #: Above this many panels the dense backend solves by CG instead of Cholesky.
 DIRECT_LIMIT = 4000
@@ -238,7 +239,7 @@ def _solve_compressed(panels, rhs, eps_r, rules, tol, compression, ground_z, hav
 
 def _solve_dielectric(panels, volts, eps_r, rules, tol, ground_z, dielectrics, backend,
                       compression, progress):
-    from .dielectric import plan_dielectrics, solve_system
+    from bem3d.solve.dielectric import plan_dielectrics, solve_system
 
     system = plan_dielectrics(panels, dielectrics, eps_r, ground_z)
     have = available_memory()
@@ -255,7 +256,7 @@ def _solve_dielectric(panels, volts, eps_r, rules, tol, ground_z, dielectrics, b
         result = solve_system(system, volts, rules)
         result.timings_s.update({"assembly": 0.0, "solve": time.perf_counter() - t0})
         return result
-    from .dielectric_compressed import DielectricPlan, solve_planned
+    from bem3d.solve.dielectric_compressed import DielectricPlan, solve_planned
 
     plan = DielectricPlan(system, rules, compression or Compression(), SUBDOMAIN_SIZE)
     work = plan.work_bytes(panels.n_conductors)
@@ -274,8 +275,8 @@ def _solve_dielectric(panels, volts, eps_r, rules, tol, ground_z, dielectrics, b
 
 def read_dielectrics(model):
     """The model's dielectric bodies (one closed mesh file each) in metres."""
-    from .dielectric import DielectricBody
-    from .meshio_io import read_conductors
+    from bem3d.solve.dielectric import DielectricBody
+    from bem3d.mesh_io.read import read_conductors
 
     bodies = []
     for path, eps in model.dielectrics:
@@ -290,7 +291,7 @@ def extract(model, solver="auto", tol=1e-7, rules=PairRules(), progress=False, *
     """Read the model's meshes and solve: returns (panels, CapacitanceResult, warnings).
 
     backend, compression, cache, cache_dir: as in solve_panels (the cache is on here)."""
-    from .meshio_io import read_conductors
+    from bem3d.mesh_io.read import read_conductors
 
     panels, warnings = read_conductors(model.meshes, units=model.length_unit)
     bodies = read_dielectrics(model)

@@ -37,14 +37,15 @@ from types import SimpleNamespace
 
 import numpy as np
 
-from . import __version__
-from .constants import LENGTH_UNITS
-from .errors import Bem3dError, MeshError, ModelError
-from .export import atomic_path, write_outputs
-from .geometry import Panels
-from .operators import PairRules
-from .results import CapacitanceResult, mutual_from_maxwell, potential_vector, reduce_floating
-from .units import prefix_for
+from bem3d.base.version import __version__
+from bem3d.base.constants import LENGTH_UNITS
+from bem3d.base.errors import Bem3dError, MeshError, ModelError
+from bem3d.base.files import atomic_path
+from bem3d.export.outputs import write_outputs
+from bem3d.geometry.panels import Panels
+from bem3d.operators.rules import PairRules
+from bem3d.results import CapacitanceResult, mutual_from_maxwell, potential_vector, reduce_floating
+from bem3d.base.units import prefix_for
 
 #: Largest exit code used for "this many cases failed" (126 and above mean other things to shells).
 MAX_EXIT = 125
@@ -325,8 +326,8 @@ def solve_task(panels, eps_r, ground_z, bodies, solver, tol, threads):
     import numba
     from threadpoolctl import threadpool_limits
 
-    from .pipeline import solve_panels
-    from .resources import peak_memory
+    from bem3d.solve.conductors import solve_panels
+    from bem3d.base.resources import peak_memory
 
     before = numba.get_num_threads()
     numba.set_num_threads(max(1, min(threads, numba.config.NUMBA_NUM_THREADS)))
@@ -613,7 +614,7 @@ def plot_summary(rows, x_column, group_columns, entries, target):
 
 def add_sweep_parser(subparsers):
     """Add the 'sweep' command to the CLI's subparsers."""
-    from .cli import add_model_options
+    from bem3d._cli.options import add_model_options
 
     p = subparsers.add_parser(
         "sweep", help="run many cases: moved or scaled conductors, or a set of files",
@@ -652,7 +653,7 @@ def add_sweep_parser(subparsers):
 
 def _model(inputs, args):
     """The model of some inputs with the command line's overrides (as 'bem3d extract')."""
-    from .cli import model_from_args
+    from bem3d._cli.options import model_from_args
 
     # Every model option of the sweep's parser is passed on; the output folder is the case's.
     return model_from_args(SimpleNamespace(**{**vars(args), "inputs": list(inputs),
@@ -662,8 +663,8 @@ def _model(inputs, args):
 def _base(args, moves, entries):
     """The moved model, its panels (m), warnings and dielectric bodies; names checked before
     anything runs."""
-    from .meshio_io import read_conductors
-    from .pipeline import read_dielectrics
+    from bem3d.mesh_io.read import read_conductors
+    from bem3d.solve.conductors import read_dielectrics
 
     model = _model(args.inputs, args)
     panels, warnings = read_conductors(model.meshes, units=model.length_unit)
@@ -678,9 +679,9 @@ def _base(args, moves, entries):
 def _case_panels(case, model, base, unit):
     """Panels (m), warnings and dielectric bodies of one case; MeshError if a move makes
     conductors touch. Moves apply to conductors only: dielectric bodies stay where they are."""
-    from .converge import mesh_sources
-    from .meshio_io import check_geometry, read_conductors
-    from .pipeline import read_dielectrics
+    from bem3d.post.convergence import mesh_sources
+    from bem3d.mesh_io.read import check_geometry, read_conductors
+    from bem3d.solve.conductors import read_dielectrics
 
     if case.source is not None:
         return (*read_conductors(model.meshes, units=model.length_unit),

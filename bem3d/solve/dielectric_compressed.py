@@ -18,13 +18,13 @@ import numpy as np
 from scipy.sparse.linalg import LinearOperator, gmres
 from threadpoolctl import threadpool_limits
 
-from .dielectric import normal_field_arguments, system_result, system_rhs, union_panels
-from .geometry import Panels
-from .operators import PairRules
-from .operators.cluster import ClusterTree
-from .operators.hfield import FieldOperator, FieldPlan, field_arguments
-from .operators.hmatrix import Compression, HMatrixOperator, HMatrixPlan
-from .solve import SchwarzPreconditioner
+from bem3d.solve.dielectric import normal_field_arguments, system_result, system_rhs, union_panels
+from bem3d.geometry.panels import Panels
+from bem3d.operators.rules import PairRules
+from bem3d.operators.cluster import ClusterTree
+from bem3d.operators.hfield import FieldOperator, FieldPlan, field_arguments
+from bem3d.operators.hmatrix import Compression, HMatrixOperator, HMatrixPlan
+from bem3d.solve.schwarz import SchwarzPreconditioner
 
 #: Krylov vectors kept between GMRES restarts.
 RESTART = 60

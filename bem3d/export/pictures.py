@@ -2,7 +2,7 @@
 
 import numpy as np
 
-from .units import prefix_for
+from bem3d.base.units import prefix_for
 
 
 def _plotter(shape=(1, 1)):
