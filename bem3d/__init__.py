@@ -1,5 +1,17 @@
-"""bem3d: capacitance matrices and field energy of 3D conductors from surface meshes."""
+"""bem3d: capacitance matrices and field energy of 3D conductors from surface meshes.
 
+    import bem3d
+    result = bem3d.extract(["pad.stl", "lid.stl"], units="mm", volts={"pad": 5.0})
+    result.maxwell, result.mutual, result.energy        # F, F, J
+
+Lengths are in the model's unit going in and coming out; quantities are SI.
+"""
+
+from bem3d.api import Geometry, extract, field, read
+from bem3d.base.errors import Bem3dError, MeshError, ModelError, ResourceError
 from bem3d.base.version import __version__
+from bem3d.model import Model
+from bem3d.result import FieldResult, Result
 
-__all__ = ["__version__"]
+__all__ = ["extract", "field", "read", "Result", "FieldResult", "Geometry", "Model",
+           "Bem3dError", "MeshError", "ModelError", "ResourceError", "__version__"]

@@ -27,7 +27,7 @@ except ModuleNotFoundError:          # Python 3.10
     import tomli as tomllib
 
 from bem3d.base.constants import LENGTH_UNITS
-from bem3d.base.errors import ModelError
+from bem3d.base.errors import ModelError, option
 
 #: Accepted relative permittivities: no passive medium has a static value below vacuum's 1, and
 #: the largest reported for bulk ceramics are of order 1e5 (common practice, no source).
@@ -75,6 +75,11 @@ class Model:
             checked.append((Path(path), _permittivity(eps, f"relative permittivity of {path}",
                                                       self.source)))
         self.dielectrics = checked
+
+    def files(self):
+        """Every file the model reads: meshes, dielectric bodies, the model file."""
+        files = [*self.meshes, *(path for path, _ in self.dielectrics)]
+        return files + ([Path(self.source)] if Path(self.source).is_file() else [])
 
     @property
     def ground_z_m(self):
@@ -162,11 +167,11 @@ def parse_dielectrics(items):
         except ValueError:
             sep = ""
         if not sep or not name:
-            raise ModelError(f"--dielectric: expected FILE=EPS_R, got '{item}'")
+            raise ModelError(f"{option('dielectrics')}: expected FILE=EPS_R, got '{item}'")
     return bodies
 
 
-def parse_volts(items, source="--volts"):
+def parse_volts(items, source=option("volts")):
     """{'drive': 5.0} from ['drive=5', ...]."""
     volts = {}
     for item in items or []:
@@ -178,3 +183,37 @@ def parse_volts(items, source="--volts"):
         if not sep or not name.strip():
             raise ModelError(f"{source}: expected NAME=VOLTS, got '{item}'")
     return volts
+
+
+def build_model(inputs, *, units=None, volts=None, eps_r=None, ground_plane=None, floating=(),
+                dielectrics=(), out=None):
+    """The Model of `inputs` (mesh paths, or one .toml model file whose settings are the
+    defaults) with the given settings on top; None (or empty) leaves a setting as it is.
+
+    units: mesh length unit; volts: {name: V}; eps_r: background relative permittivity;
+    ground_plane: z of a grounded plane (mesh unit); floating: conductor names; dielectrics:
+    [(mesh path, relative permittivity)] or {path: eps_r}; out: output folder (default
+    <first input>_result)."""
+    inputs = [inputs] if isinstance(inputs, (str, Path)) else list(inputs)
+    if not inputs:
+        raise ModelError("no mesh files given")
+    if len(inputs) == 1 and str(inputs[0]).lower().endswith(".toml"):
+        model = load_model(inputs[0])
+    else:
+        model = Model(meshes=inputs, length_unit=units or "m")
+    if units:
+        model.length_unit = units
+    if eps_r is not None:
+        model.relative_permittivity = eps_r
+    model.volts.update(volts or {})
+    if ground_plane is not None:
+        model.ground_plane_z = ground_plane
+    model.floating += list(floating or ())
+    dielectrics = dielectrics.items() if isinstance(dielectrics, dict) else dielectrics or ()
+    model.dielectrics += [(Path(path), eps) for path, eps in dielectrics]
+    if out is not None:
+        model.output_folder = Path(out)
+    if model.output_folder is None:
+        model.output_folder = Path(f"{Path(inputs[0]).stem}_result")
+    model.__post_init__()                  # validate the merged settings
+    return model

@@ -4,6 +4,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
+from bem3d.base.errors import ModelError, option
 from bem3d.base.units import format_quantity, prefix_for
 
 
@@ -31,16 +32,14 @@ class FieldSources:
 def potential_vector(names, volts, floating=()):
     """Potentials (V) of the conductors `names` from {name: V} (others at 0 V); ModelError if a
     name is no conductor or a floating conductor is given a potential."""
-    from bem3d.base.errors import ModelError
-
-    for option, given in (("--volts", volts), ("--floating", floating)):
+    for name, given in (("volts", volts), ("floating", floating)):
         unknown = sorted(set(given) - set(names))
         if unknown:
-            raise ModelError(f"{option}: no conductor named {', '.join(unknown)} "
+            raise ModelError(f"{option(name)}: no conductor named {', '.join(unknown)} "
                              f"(conductors: {', '.join(names)})")
     fixed = sorted(set(volts) & set(floating))
     if fixed:
-        raise ModelError(f"--volts: {', '.join(fixed)} is floating; its potential is an "
+        raise ModelError(f"{option('volts')}: {', '.join(fixed)} is floating; its potential is an "
                          "outcome, not an input")
     return np.array([volts.get(n, 0.0) for n in names])
 
@@ -52,16 +51,14 @@ def reduce_floating(result, floating):
     V_f = -C_ff^-1 C_ft V_t and the terminals' matrix C_tt - C_tf C_ff^-1 C_ft (a Schur
     complement of the Maxwell matrix); every terminal's unit charge pattern gains the charge
     its floating neighbours pick up."""
-    from bem3d.base.errors import ModelError
-
     unknown = sorted(set(floating) - set(result.names))
     if unknown:
-        raise ModelError(f"--floating: no conductor named {', '.join(unknown)} "
+        raise ModelError(f"{option('floating')}: no conductor named {', '.join(unknown)} "
                          f"(conductors: {', '.join(result.names)})")
     f = [i for i, n in enumerate(result.names) if n in floating]
     t = [i for i, n in enumerate(result.names) if n not in floating]
     if not t:
-        raise ModelError("--floating: at least one conductor must stay a terminal")
+        raise ModelError(f"{option('floating')}: at least one conductor must stay a terminal")
     c = result.maxwell
     transfer = -np.linalg.solve(c[np.ix_(f, f)], c[np.ix_(f, t)])     # V_f per V_t
     reduced = c[np.ix_(t, t)] + c[np.ix_(t, f)] @ transfer

@@ -5,7 +5,6 @@ a curved body meets its exact value, two refinements (h and h/2) are Richardson-
 with order 2. Tolerances are the accuracy targets of the project's core issue.
 """
 
-import math
 
 import numpy as np
 import pytest

@@ -18,7 +18,7 @@ import pytest
 import reference_values as ref
 from bem3d.geometry import shapes
 from bem3d.post.convergence import (add_converge_parser, converge, richardson, run_converge, subdivide)
-from bem3d.solve.dielectric import DielectricBody
+from bem3d.geometry.bodies import DielectricBody
 from bem3d.mesh_io.read import mesh_summary
 from conftest import make_panels
 

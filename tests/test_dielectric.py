@@ -13,7 +13,8 @@ import pytest
 
 import reference_values as ref
 from bem3d.geometry import shapes
-from bem3d.solve.dielectric import DielectricBody, solve_with_dielectrics
+from bem3d.geometry.bodies import DielectricBody
+from bem3d.solve.dielectric import solve_with_dielectrics
 from bem3d.base.errors import MeshError, ModelError
 from bem3d.geometry.panels import Panels
 from bem3d.solve.conductors import solve_panels

@@ -14,9 +14,10 @@ import numpy as np
 import pytest
 
 import reference_values as ref
-from bem3d.solve import conductors as pipeline
+from bem3d.solve import backend, conductors
 from bem3d.geometry import shapes
-from bem3d.solve.dielectric import DielectricBody, _interface_rows, plan_dielectrics, union_panels
+from bem3d.geometry.bodies import DielectricBody
+from bem3d.solve.dielectric import _interface_rows, plan_dielectrics, union_panels
 from bem3d.base.errors import ResourceError
 from bem3d.solve.dielectric_compressed import DielectricPlan
 from bem3d.geometry.panels import Panels
@@ -201,15 +202,15 @@ def test_normal_field_blocks_are_within_their_tolerance(two_in_a_box, ground_z, 
 def test_auto_takes_the_compressed_backend_for_large_dielectric_models(two_in_a_box,
                                                                       monkeypatch):
     cond, bodies = two_in_a_box
-    monkeypatch.setattr(pipeline, "COMPRESSED_FROM", len(cond))
+    monkeypatch.setattr(backend, "COMPRESSED_FROM", len(cond))
     assert solve_panels(cond, dielectrics=bodies).solver["backend"] == "compressed"
-    monkeypatch.setattr(pipeline, "COMPRESSED_FROM", 10 * len(cond))
+    monkeypatch.setattr(backend, "COMPRESSED_FROM", 10 * len(cond))
     assert solve_panels(cond, dielectrics=bodies).solver["backend"] == "dense"
 
 
 def test_too_little_memory_is_a_one_line_resource_error(two_in_a_box, monkeypatch):
     cond, bodies = two_in_a_box
-    monkeypatch.setattr(pipeline, "available_memory", lambda: 2**20)
+    monkeypatch.setattr(conductors, "available_memory", lambda: 2**20)
     with pytest.raises(ResourceError, match="compressed dielectric system") as error:
         solve_panels(cond, dielectrics=bodies, backend="compressed")
     assert "\n" not in str(error.value)

@@ -21,7 +21,8 @@ import pytest
 import reference_values as ref
 from bem3d.geometry import shapes
 from bem3d._cli.main import main
-from bem3d.solve.dielectric import DielectricBody, medium_at, solve_with_dielectrics
+from bem3d.geometry.bodies import DielectricBody
+from bem3d.solve.dielectric import medium_at, solve_with_dielectrics
 from bem3d.base.errors import ModelError
 from bem3d.post.grid import Grid
 from bem3d.post.energy import energy_balance

@@ -142,5 +142,5 @@ def test_memory_guard_refuses_an_impossible_dense_run_before_assembly():
     """200,978 panels dense need 8 N^2 = 323 GB: refused with a message, nothing allocated."""
     points, triangles = shapes.rectangle(1.0, 1.0, 317, 317)
     panels = Panels.from_arrays(points, triangles, np.zeros(len(triangles), int), ("plate",))
-    with pytest.raises(ResourceError, match=r"200978 panels need .* GiB for the dense matrix"):
+    with pytest.raises(ResourceError, match=r"200978 panels \(the dense matrix\) would need .* GiB"):
         solve_panels(panels, backend="dense", solver="cg")

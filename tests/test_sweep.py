@@ -23,7 +23,8 @@ from bem3d.geometry import shapes
 from bem3d.base.constants import EPS0
 from bem3d.base.errors import Bem3dError
 from bem3d.model import Model
-from bem3d.solve.conductors import extract, solve_panels
+from bem3d.api import extract
+from bem3d.solve.conductors import solve_panels
 from bem3d.post.sweep import (add_sweep_parser, move_conductors, parse_entry, parse_move, parse_values, run_sweep)
 from conftest import default_sigint, make_panels
 
@@ -136,7 +137,7 @@ def test_gap_sweep_is_monotone_and_equals_direct_extract(plates, tmp_path, capsy
     for k, shift in enumerate([0.0, 0.2, 0.4, 0.6]):
         (tmp_path / f"direct{k}").mkdir()
         moved = write_mesh(tmp_path / f"direct{k}" / "top.vtu", plate(GAP0 + shift))
-        _, direct, _ = extract(Model(meshes=[plates[0], moved], length_unit="mm"))
+        direct = extract(Model(meshes=[plates[0], moved], length_unit="mm"))
         # the sweep moves the panels in metres, the direct run reads moved coordinates:
         # rounding differs at 1e-16, which can move a pair across a quadrature tier (~1e-10)
         assert float(rows[k]["mutual_F:bottom:top"]) == pytest.approx(direct.mutual[0, 1], rel=1e-9)
@@ -176,7 +177,7 @@ def test_ground_plane_and_floating_conductor_follow_extract(plates, tmp_path, ca
     for k, shift in enumerate([0.0, 0.3]):
         (tmp_path / f"direct{k}").mkdir()
         moved = write_mesh(tmp_path / f"direct{k}" / "top.vtu", plate(GAP0 + shift))
-        _, direct, _ = extract(Model(meshes=[plates[0], moved], length_unit="mm",
+        direct = extract(Model(meshes=[plates[0], moved], length_unit="mm",
                                      ground_plane_z=-0.3, floating=["top"]))
         assert direct.names == ("bottom",)
         assert float(rows[k]["maxwell_F:bottom:bottom"]) == pytest.approx(direct.maxwell[0, 0],
@@ -201,7 +202,7 @@ def test_dielectric_body_stays_while_a_conductor_moves(plates, tmp_path, capsys)
     for k, shift in enumerate([0.0, 0.2]):
         (tmp_path / f"direct{k}").mkdir()
         moved = write_mesh(tmp_path / f"direct{k}" / "top.vtu", plate(GAP0 + shift))
-        _, direct, _ = extract(Model(meshes=[plates[0], moved], length_unit="mm",
+        direct = extract(Model(meshes=[plates[0], moved], length_unit="mm",
                                      dielectrics=[(slab, 4.0)]))
         assert float(rows[k]["mutual_F:bottom:top"]) == pytest.approx(direct.mutual[0, 1],
                                                                       rel=1e-9)

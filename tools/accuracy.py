@@ -29,7 +29,7 @@ def solve(*parts):
 def rows():
     sphere = {m: solve(shapes.octahedral_sphere(1.0, m)) for m in (16, 32, 64)}
     exact = ref.isolated_sphere(1.0)
-    for m, (n, c) in sphere.items():
+    for n, c in sphere.values():
         yield "sphere a=1", n, c[0, 0], exact
     yield "sphere, Richardson 2k/8k", 2048 + 8192, ref.richardson(sphere[16][1], sphere[32][1])[0, 0], exact
     yield "sphere, Richardson 8k/32k", 8192 + 32768, ref.richardson(sphere[32][1], sphere[64][1])[0, 0], exact

@@ -3,7 +3,7 @@
 from pathlib import Path
 
 
-from bem3d.base.errors import ModelError
+from bem3d.model import build_model, parse_dielectrics, parse_volts
 
 
 def add_model_options(p):
@@ -51,37 +51,14 @@ def add_solver_options(p):
                    help="neither read nor write the operator cache")
 
 
-def solver_options(args):
-    """The solve settings of extract and field, as keyword arguments of pipeline.solve_panels."""
-    from bem3d.operators.hmatrix import Compression
-
-    for name, value in (("--tol", args.tol), ("--block-tol", args.block_tol)):
-        if not 0 < value < 1:
-            raise ModelError(f"{name} must lie between 0 and 1, got {value:g}")
+def solver_settings(args):
+    """The solve settings of extract and field, as keyword arguments of the API."""
     return {"backend": args.backend, "solver": args.solver, "tol": args.tol,
-            "compression": Compression(tolerance=args.block_tol), "cache": not args.no_cache,
-            "cache_dir": args.cache_dir}
+            "block_tol": args.block_tol, "cache": not args.no_cache, "cache_dir": args.cache_dir}
 
 
 def model_from_args(args):
-    from bem3d.model import Model, load_model, parse_dielectrics, parse_volts
-
-    if len(args.inputs) == 1 and args.inputs[0].lower().endswith(".toml"):
-        model = load_model(args.inputs[0])
-    else:
-        model = Model(meshes=args.inputs, length_unit=args.units or "m")
-    if args.units:
-        model.length_unit = args.units
-    if args.eps_r is not None:
-        model.relative_permittivity = args.eps_r
-    model.volts.update(parse_volts(args.volts))
-    if args.ground_plane is not None:
-        model.ground_plane_z = args.ground_plane
-    model.floating += args.floating
-    model.dielectrics += parse_dielectrics(args.dielectric)
-    if args.out:
-        model.output_folder = args.out
-    if model.output_folder is None:
-        model.output_folder = Path(f"{Path(args.inputs[0]).stem}_result")
-    model.__post_init__()                  # validate the merged settings
-    return model
+    """The Model of the parsed model options (a model file's settings under the flags)."""
+    return build_model(args.inputs, units=args.units, volts=parse_volts(args.volts),
+                       eps_r=args.eps_r, ground_plane=args.ground_plane, floating=args.floating,
+                       dielectrics=parse_dielectrics(args.dielectric), out=args.out)

@@ -1,11 +1,32 @@
 """The exceptions bem3d raises for problems the user can fix.
 
-The CLI turns each into a one-line message and exit code 2; anything else is a bug.
+A message may name a setting with `option("volts")`. Printed from Python it reads as the
+keyword (`volts`); the command line prints its own flag (`--volts`) in its place, so one message
+serves both. The command line turns each error into one line and exit code 2; anything else
+escaping is a bug.
 """
+
+import re
+
+_MARK = "\x1f"
+_OPTION = re.compile(f"{_MARK}([a-z_]+){_MARK}")
+
+
+def option(name):
+    """A reference to the setting `name` (a Python keyword of the public API) inside a message."""
+    return f"{_MARK}{name}{_MARK}"
 
 
 class Bem3dError(Exception):
     """Base class: a problem with the user's input or request."""
+
+    def render(self, spell=None):
+        """The message with each setting spelled by spell(name) (default: the keyword itself)."""
+        text = str(self.args[0]) if self.args else ""
+        return _OPTION.sub(lambda m: (spell or str)(m.group(1)), text)
+
+    def __str__(self):
+        return self.render()
 
 
 class MeshError(Bem3dError):
@@ -13,7 +34,7 @@ class MeshError(Bem3dError):
 
 
 class ModelError(Bem3dError):
-    """A model file or command-line model description is malformed."""
+    """A model file or model description is malformed."""
 
 
 class ResourceError(Bem3dError):

@@ -15,7 +15,7 @@ import threading
 from contextlib import contextmanager
 from pathlib import Path
 
-from bem3d.base.errors import ModelError
+from bem3d.base.errors import ModelError, option
 
 
 _UMASK = os.umask(0o022)
@@ -70,8 +70,8 @@ def _refuse_overwrites(folder, names, inputs, force):
             raise ModelError(f"{target}: a folder stands where an output file goes")
     if existing and not force:
         raise ModelError(f"{folder}: already holds {', '.join(existing)} (results of an "
-                         "earlier run?); choose another output folder or pass --force to "
-                         "replace them")
+                         f"earlier run?); choose another output folder or pass {option('force')} "
+                         "to replace them")
 
 
 @contextmanager

@@ -3,7 +3,7 @@
 import os
 import resource
 
-from bem3d.base.errors import ResourceError
+from bem3d.base.errors import ResourceError, option
 
 #: Share of the available memory a run may plan to use.
 MEMORY_FRACTION = 0.6
@@ -49,4 +49,4 @@ def check_panel_count(n_panels, max_panels, label):
     """Raise ResourceError if n_panels exceeds max_panels (None: no limit)."""
     if max_panels is not None and n_panels > max_panels:
         raise ResourceError(f"{label}: {n_panels:,} panels, more than the limit of "
-                            f"{max_panels:,} (--max-panels)")
+                            f"{max_panels:,} ({option('max_panels')})")

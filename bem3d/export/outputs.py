@@ -2,6 +2,7 @@
 
 from bem3d.export.records import result_record, spice_node, write_csv, write_json, write_spice
 from bem3d.export.vtk import write_surface
+from bem3d.export.checks import require_finite
 
 from pathlib import Path
 
@@ -20,8 +21,6 @@ def write_outputs(folder, panels, result, model, warnings=(), extra=None, extra_
     Nothing is written if a capacitance, charge, energy or solver figure is NaN or infinite
     (Bem3dError). extra: more keys for result.json; extra_cells: more cell arrays for
     surface.vtp."""
-    from bem3d.export.checks import require_finite
-
     require_finite(result_record(result), ", ".join(str(m) for m in model.meshes))
     folder = Path(folder)
     files = [folder / name for name in output_names(model)]

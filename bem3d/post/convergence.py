@@ -314,7 +314,7 @@ def run_converge(args):
     """The 'converge' command: exit code 0; bad input raises Bem3dError."""
     from bem3d._cli.options import model_from_args
     from bem3d.mesh_io.read import read_conductors
-    from bem3d.solve.conductors import read_dielectrics
+    from bem3d.mesh_io.bodies import read_bodies
 
     if not 0.0 < args.crease_angle < 180.0:
         raise ModelError(f"--crease-angle must be between 0 and 180 degrees, got "
@@ -326,7 +326,7 @@ def run_converge(args):
     conv = converge(panels, args.refinements, not args.flat, args.crease_angle, model.volts,
                     model.relative_permittivity, args.solver, args.tol, not args.quiet,
                     mesh_sources(model, panels), model.ground_z_m, model.floating,
-                    read_dielectrics(model))
+                    read_bodies(model.dielectrics, model.length_unit))
     folder = Path(model.output_folder)
     for level, (p, r) in enumerate(zip(conv.panels, conv.results)):
         write_outputs(folder / f"mesh_{level}", p, r, model, warnings)

@@ -10,11 +10,7 @@ import numpy as np
 
 from bem3d.base.constants import EPS0
 from bem3d.solve.dielectric import medium_at
-from bem3d.base.errors import ModelError, ResourceError
-from bem3d.base.files import atomic_path
-from bem3d.export.vtk import surface_polydata, write_image, write_slice
-from bem3d.export.outputs import write_outputs
-from bem3d.export.records import write_point_table
+from bem3d.base.errors import ModelError, ResourceError, option
 from bem3d.post.grid import Grid
 from bem3d.post.fields import conductor_forces, peak_fields, surface_fields
 from bem3d.post.energy import energy_balance
@@ -37,7 +33,8 @@ class FieldRequest:
 
     box: (lo (3,), hi (3,)) or None for the model's bounding box widened by `margin` times its
     largest size; spacing (m) or points (nx, ny, nz) set the resolution; slices: [(axis index,
-    coordinate)]; point_file: CSV of x, y, z in the mesh unit (scaled by `point_scale`)."""
+    coordinate)]; point_file: CSV of x, y, z in the mesh unit (scaled by `point_scale`), or
+    listed_points (m, 3) in metres."""
 
     box: tuple | None = None
     margin: float = 0.5
@@ -46,6 +43,7 @@ class FieldRequest:
     slices: list = field(default_factory=list)
     point_file: Path | None = None
     point_scale: float = 1.0
+    listed_points: np.ndarray | None = None
     unit_fields: bool = False
     png: bool = False
 
@@ -60,10 +58,10 @@ class FieldRequest:
         else:
             lo, hi = (np.asarray(b, float) for b in self.box)
             if np.any(hi <= lo):
-                raise ModelError("--box: each maximum must exceed its minimum")
+                raise ModelError(f"{option('box')}: each maximum must exceed its minimum")
         if self.spacing is not None:
             if not self.spacing > 0:
-                raise ModelError("--spacing must be positive")
+                raise ModelError(f"{option('spacing')} must be positive")
             counts = np.floor((hi - lo) / self.spacing + 1e-9).astype(int) + 1
             hi = lo + (counts - 1) * self.spacing
         else:
@@ -71,11 +69,12 @@ class FieldRequest:
             if counts.size == 1:
                 counts = np.repeat(counts, 3)
             if np.any(counts < 2):
-                raise ModelError("--points: at least 2 per axis")
+                raise ModelError(f"{option('points')}: at least 2 per axis")
         total = math.prod(int(c) for c in counts)         # Python ints: no overflow
         if total > MAX_GRID_POINTS:
             raise ResourceError(f"the grid would have {total:,} points (limit "
-                                f"{MAX_GRID_POINTS:,}); use a coarser --spacing or fewer --points")
+                                f"{MAX_GRID_POINTS:,}); use a coarser {option('spacing')} or fewer "
+                                f"{option('points')}")
         return Grid.box(lo, hi, counts)
 
     def plan(self, panels, ground_z=None):
@@ -86,9 +85,50 @@ class FieldRequest:
         if self.png and not slices:       # a picture needs a slice: the box's middle in z
             slices = [(2, float(grid.origin[2] + grid.spacing[2] * (grid.shape[2] - 1) / 2))]
         slice_grids = [(axis, value, _slice_grid(grid, axis, value)) for axis, value in slices]
-        listed = None if self.point_file is None else read_points(self.point_file,
-                                                                  self.point_scale)
+        listed = self.listed_points
+        if self.point_file is not None:
+            listed = read_points(self.point_file, self.point_scale)
         return grid, slice_grids, listed
+
+
+def field_request(scale, *, box=None, margin=0.5, spacing=None, points=41, slices=(), at=None,
+                  unit_fields=False, png=False):
+    """A FieldRequest from lengths in the mesh unit (scale: metres per mesh unit).
+
+    box: (x0, y0, z0, x1, y1, z1) or None; points: N or (NX, NY, NZ); slices: 'z=0.25' strings
+    or (axis, value) pairs; at: a CSV file of x, y, z or an (m, 3) array."""
+    planes = []
+    for item in slices:
+        if isinstance(item, str):
+            axis, sep, value = item.partition("=")
+            if not sep:
+                raise ModelError(f"{option('slices')}: expected AXIS=VALUE, got '{item}'")
+        else:
+            axis, value = item
+        try:
+            planes.append(("xyz".index(str(axis).strip().lower()), float(value) * scale))
+        except ValueError:
+            raise ModelError(f"{option('slices')}: expected x=, y= or z= and a number, got "
+                             f"'{item}'") from None
+    points = (points,) if np.ndim(points) == 0 else tuple(points)
+    if len(points) not in (1, 3):
+        raise ModelError(f"{option('points')} takes one number or three (NX NY NZ)")
+    if box is not None:
+        box = np.asarray(box, float).ravel()
+        if box.size != 6:
+            raise ModelError(f"{option('box')}: expected six numbers x0 y0 z0 x1 y1 z1")
+        box = (box[:3] * scale, box[3:] * scale)
+    point_file, listed = None, None
+    if isinstance(at, (str, Path)):
+        point_file = Path(at)
+    elif at is not None:
+        listed = np.asarray(at, float).reshape(-1, 3) * scale
+        if not np.all(np.isfinite(listed)):
+            raise ModelError(f"{option('at')}: points must be finite")
+    return FieldRequest(box=box, margin=margin, points=points,
+                        spacing=None if spacing is None else spacing * scale, slices=planes,
+                        point_file=point_file, point_scale=scale, listed_points=listed,
+                        unit_fields=unit_fields, png=png)
 
 
 def read_points(path, scale):
@@ -121,7 +161,7 @@ def _slice_grid(grid, axis, value):
     lo = grid.origin.copy()
     hi = grid.origin + grid.spacing * (np.array(grid.shape) - 1)
     if not lo[axis] <= value <= hi[axis]:
-        raise ModelError(f"--slice {'xyz'[axis]}={value:g} m lies outside the field box "
+        raise ModelError(f"{option('slices')} {'xyz'[axis]}={value:g} m lies outside the field box "
                          f"({lo[axis]:g} .. {hi[axis]:g} m)")
     lo[axis] = hi[axis] = value
     shape = list(grid.shape)
@@ -193,13 +233,27 @@ class _Evaluator:
         return EPS0 * medium_at(points, self.source.bodies, self.source.background)
 
 
-def map_fields(panels, result, model, request, plan, warnings=(), progress=False):
-    """Evaluate, balance and write everything for the `field` job; returns (record, files).
+@dataclass
+class FieldMap:
+    """Everything the `field` job computes, in SI units (lengths in metres).
 
-    plan: request.plan(panels), made before the solve so that a bad request costs nothing.
+    record: the keys it adds to result.json (energies J, peaks V/m, forces N, torques N m);
+    grid and grid_arrays: the box and its point arrays; slices: [(axis, value, grid, arrays)];
+    listed: (points (m, 3), {column: values}) or None; surface_cells: the cell arrays it adds
+    to surface.vtp."""
 
-    record holds the keys added to result.json (energies J, peaks V/m, forces N, torques N m)."""
-    folder = Path(model.output_folder)
+    record: dict
+    grid: Grid
+    grid_arrays: dict
+    slices: list
+    listed: tuple | None
+    surface_cells: dict
+
+
+def compute_field_map(panels, result, request, plan, progress=False):
+    """Evaluate the fields, the energy balance, peaks and forces of the `field` job.
+
+    plan: request.plan(panels), made before the solve so that a bad request costs nothing."""
     grid, slice_grids, listed = plan
     ev = _Evaluator(panels, result, request.unit_fields, progress)
     dielectric = bool(ev.source.bodies)
@@ -233,57 +287,17 @@ def map_fields(panels, result, model, request, plan, warnings=(), progress=False
         "field_caution": FIELD_CAUTION,
     })
     face_max = np.linalg.norm(surface.face_fields, axis=2).max(axis=1)
-    files = write_outputs(folder, panels, result, model, warnings, record,
-                          {"E_normal": surface.normal_field, "E_face_max": face_max,
-                           "force_density": surface.panel_force / panels.areas[:, None]})
-    target = folder / "field.vti"
-    write_image(grid, _point_arrays(grid_fields, grid_eps, result.names, request.unit_fields,
-                                    dielectric), target)
-    files.append(target)
-    slice_outputs = []
-    for (axis, value, sgrid), sfields in zip(slice_grids, slice_fields):
-        target = folder / f"slice_{'xyz'[axis]}_{value:.6g}.vtp"
-        arrays = _point_arrays(sfields, ev.eps(sgrid.points()), result.names,
-                               request.unit_fields, dielectric)
-        write_slice(sgrid, arrays, target)
-        files.append(target)
-        slice_outputs.append((target, axis, arrays))
+    surface_cells = {"E_normal": surface.normal_field, "E_face_max": face_max,
+                     "force_density": surface.panel_force / panels.areas[:, None]}
+    grid_arrays = _point_arrays(grid_fields, grid_eps, result.names, request.unit_fields,
+                                dielectric)
+    slices = [(axis, value, sgrid, _point_arrays(sfields, ev.eps(sgrid.points()), result.names,
+                                                 request.unit_fields, dielectric))
+              for (axis, value, sgrid), sfields in zip(slice_grids, slice_fields)]
+    table = None
     if listed is not None:
-        target = folder / "points.csv"
-        write_point_table(listed, {"phi_V": listed_fields.phi[:, 0],
-                                   "E_V_per_m": listed_fields.E[:, 0],
-                                   "energy_density_J_per_m3":
-                                       listed_fields.energy_density(ev.eps(listed))[:, 0],
-                                   "inside_conductor": listed_fields.inside.astype(int)}, target)
-        files.append(target)
-
-    if request.png:
-        problems = []
-        files += _pictures(panels, result, folder, slice_outputs[0], problems)
-        record["picture_problems"] = problems     # shown on the console; numbers are written
-    return record, files
-
-
-def _pictures(panels, result, folder, first_slice, problems):
-    """surface_charge.png and the |E| picture of the first slice; a renderer failure is a
-    warning, not a failed run (the numbers are already written)."""
-    import pyvista as pv
-
-    from bem3d.export.pictures import render_slice, render_surface_charge
-
-    surface = surface_polydata(panels, {})
-    slice_path, axis, arrays = first_slice
-    written = []
-    jobs = [(folder / "surface_charge.png",
-             lambda tmp: render_surface_charge(surface, result.panel_sigma(), tmp)),
-            (folder / "field_slice.png",
-             lambda tmp: render_slice(surface, pv.read(slice_path), axis, arrays["E_magnitude"],
-                                      tmp, "field magnitude", "V/m"))]
-    for target, job in jobs:
-        try:
-            with atomic_path(target) as tmp:
-                job(tmp)
-            written.append(target)
-        except Exception as err:       # noqa: BLE001 - any renderer failure
-            problems.append(f"{target.name} not rendered: {err}")
-    return written
+        table = (listed, {"phi_V": listed_fields.phi[:, 0], "E_V_per_m": listed_fields.E[:, 0],
+                          "energy_density_J_per_m3":
+                              listed_fields.energy_density(ev.eps(listed))[:, 0],
+                          "inside_conductor": listed_fields.inside.astype(int)})
+    return FieldMap(record, grid, grid_arrays, slices, table, surface_cells)

@@ -9,6 +9,7 @@ from bem3d.operators.points import FieldRules, evaluate
 from bem3d.base.constants import EPS0
 from bem3d.geometry.panels import Panels
 from bem3d.mesh_io.read import closed_conductors
+from bem3d.solve.conductors import solve_panels
 
 
 
@@ -54,8 +55,6 @@ def virtual_work_force(panels, volts, conductor, eps_r=1.0, step=None, solve=Non
     """Force (N) on conductor index `conductor` at fixed potentials volts (n_cond,) V by virtual
     work, F = +1/2 V^T (dC/dx) V, central differences of C under rigid moves of +-step (m,
     default 1e-4 of the model size) along x, y and z. Six solves of the whole model."""
-    from bem3d.solve.conductors import solve_panels
-
     solve = solve or (lambda p: solve_panels(p, eps_r=eps_r).maxwell)
     if step is None:
         v = panels.vertices.reshape(-1, 3)

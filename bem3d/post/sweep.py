@@ -664,7 +664,7 @@ def _base(args, moves, entries):
     """The moved model, its panels (m), warnings and dielectric bodies; names checked before
     anything runs."""
     from bem3d.mesh_io.read import read_conductors
-    from bem3d.solve.conductors import read_dielectrics
+    from bem3d.mesh_io.bodies import read_bodies
 
     model = _model(args.inputs, args)
     panels, warnings = read_conductors(model.meshes, units=model.length_unit)
@@ -673,7 +673,7 @@ def _base(args, moves, entries):
     for kind, a, b in entries:
         conductor_indices(panels, (a, b))
     potential_vector(panels.names, model.volts, model.floating)
-    return model, panels, warnings, read_dielectrics(model)
+    return model, panels, warnings, read_bodies(model.dielectrics, model.length_unit)
 
 
 def _case_panels(case, model, base, unit):
@@ -681,11 +681,11 @@ def _case_panels(case, model, base, unit):
     conductors touch. Moves apply to conductors only: dielectric bodies stay where they are."""
     from bem3d.post.convergence import mesh_sources
     from bem3d.mesh_io.read import check_geometry, read_conductors
-    from bem3d.solve.conductors import read_dielectrics
+    from bem3d.mesh_io.bodies import read_bodies
 
     if case.source is not None:
         return (*read_conductors(model.meshes, units=model.length_unit),
-                read_dielectrics(model))
+                read_bodies(model.dielectrics, model.length_unit))
     panels, warnings, bodies = base
     for move, value in case.steps:
         panels = move_conductors(

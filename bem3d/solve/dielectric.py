@@ -39,21 +39,6 @@ from bem3d.results import CapacitanceResult, FieldSources, potential_vector
 TEST_POINTS = 6
 
 
-@dataclass(frozen=True)
-class DielectricBody:
-    """A closed surface (panels with outward normals, metres) filled with relative permittivity eps_r."""
-
-    name: str
-    eps_r: float
-    panels: Panels
-
-    @property
-    def volume(self):
-        """Enclosed volume (m^3) by the divergence theorem; positive for outward normals."""
-        p = self.panels
-        return float(np.sum(p.areas * np.einsum("ij,ij->i", p.centroids, p.normals)) / 3.0)
-
-
 def check_bodies(bodies):
     """Each body closed, outward-facing and of positive permittivity; raises MeshError."""
     for body in bodies:

@@ -1,0 +1,45 @@
+"""bem3d check-mesh: panels, conductors and problems of meshes, without solving."""
+
+import json
+
+from bem3d import api
+from bem3d.base.units import format_quantity
+
+
+def add_parser(subparsers):
+    """Add the command to the CLI's subparsers; returns its parser."""
+    p = subparsers.add_parser("check-mesh", help="report panels, conductors and problems of "
+                                                 "meshes")
+    p.add_argument("inputs", nargs="+", metavar="INPUT", help="mesh files")
+    p.add_argument("--units", default="m", help="length unit of the meshes (default m)")
+    p.add_argument("--json", action="store_true", help="print the report as JSON")
+    return p
+
+
+def run(args):
+    report = api.read(args.inputs, units=args.units, check=False).report
+    if args.json:
+        print(json.dumps(report, indent=2))
+        return 0
+    print(f"panels: {report['panels']}")
+    for c in report["conductors"]:
+        closed = ("closed" if c["boundary_edges"] == 0
+                  else f"open, {c['boundary_edges']} boundary edges")
+        print(f"  {c['name']}: {c['panels']} panels, area {c['area_m2']:.4g} m^2 ({closed})")
+    lo, hi = report["bounding_box_m"] or ([float("nan")] * 3, [float("nan")] * 3)
+    print("bounding box [m]: " + " .. ".join("(" + ", ".join(f"{x:.4g}" for x in v) + ")"
+                                            for v in (lo, hi)))
+    for key in ("smallest_panel", "largest_panel"):
+        p = report[key]
+        if p:
+            print(f"{key.replace('_', ' ')}: area {p['area_m2']:.3g} m^2, "
+                  f"edge {format_quantity(p['edge_m'], 'm')}")
+    for key, label in (("aspect_ratio_max", "largest panel aspect ratio (longest edge / "
+                                            "height)"),
+                       ("neighbour_size_ratio_max", "largest size ratio of neighbours")):
+        if report[key] is not None:
+            print(f"{label}: {report[key]:.3g}")
+    print("problems: " + ("none" if not report["problems"] else ""))
+    for problem in report["problems"]:
+        print(f"  {problem}")
+    return 0

@@ -1,0 +1,53 @@
+"""bem3d extract: the capacitance matrices of a model, printed and written."""
+
+import sys
+
+from bem3d import api
+from bem3d._cli.options import (add_model_options, add_run_guards, add_solver_options,
+                                model_from_args, solver_settings)
+from bem3d.export.records import CAUTION
+
+
+def add_parser(subparsers):
+    """Add the command to the CLI's subparsers; returns its parser."""
+    p = subparsers.add_parser("extract", help="compute the capacitance matrices")
+    add_model_options(p)
+    add_run_guards(p)
+    add_solver_options(p)
+    p.add_argument("--quiet", action="store_true", help="print nothing but errors")
+    return p
+
+
+def solver_line(solver):
+    """One line on how the charges were found: backend, method, iterations, residual."""
+    line = f"solver: {solver.get('backend', 'dense')} backend, {solver.get('solver')}"
+    if solver.get("iterations"):
+        line += (f", {solver['iterations']} iterations to relative residual "
+                 f"{solver['relative_residual']:.1e}")
+        if not solver.get("converged", True):
+            line += f" (NOT converged to {solver['tolerance']:.0e})"
+    if solver.get("cache") in ("hit", "stored"):
+        line += f"; operator cache {solver['cache']}: {solver['cache_file']}"
+    return line
+
+
+def print_warnings(warnings):
+    for w in warnings:
+        print(f"warning: {w}", file=sys.stderr)
+
+
+def run(args):
+    model = model_from_args(args)
+    result = api.extract(model, **solver_settings(args), max_panels=args.max_panels,
+                         out=model.output_folder, force=args.force, progress=not args.quiet)
+    if args.quiet:
+        return 0
+    print_warnings(result.warnings)
+    print(result.table())
+    print(solver_line(result.solver))
+    t = result.timings
+    print(f"wall time {t['total']:.2f} s (assembly {t['assembly']:.2f} s, "
+          f"solve {t['solve']:.2f} s); peak memory {result.solver['peak_memory_MiB']:.0f} MiB")
+    print(f"caution: {CAUTION}")
+    print(f"wrote {', '.join(f.name for f in result.files)} to {model.output_folder}")
+    return 0

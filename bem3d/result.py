@@ -1,0 +1,138 @@
+"""What the public API hands back: a solved model in the user's length unit, able to save itself."""
+
+import html
+from pathlib import Path
+
+from bem3d.base.constants import LENGTH_UNITS
+from bem3d.base.files import check_output_folder, staged_outputs
+from bem3d.base.units import prefix_for
+from bem3d.export.field_files import write_field_files
+from bem3d.export.outputs import output_names, write_outputs
+
+
+class Result:
+    """The capacitance of a model, as solved. SI quantities; lengths in the model's unit.
+
+    names: conductors in matrix order. maxwell (n, n) F: the charge on i per volt on j with the
+    others at 0 V; mutual (n, n) F: the two-terminal capacitances (diagonal: to infinity or
+    ground); potentials (V), charges (C) and energy (J) at the given potentials; sigma (C/m^2)
+    on each panel at those potentials; panels: the conductor panels in `units`; warnings;
+    solver and timings records. Shown in a notebook it prints its tables, never arrays."""
+
+    def __init__(self, solved, panels, model, warnings=()):
+        self._solved, self._panels_m, self.model = solved, panels, model
+        self.warnings = list(warnings)
+        self.files = []
+
+    @property
+    def units(self):
+        """The length unit of the model's meshes, of `panels` and of every length given."""
+        return self.model.length_unit
+
+    names = property(lambda self: tuple(self._solved.names), doc="conductors in matrix order")
+    maxwell = property(lambda self: self._solved.maxwell.copy(), doc="Maxwell matrix (F)")
+    mutual = property(lambda self: self._solved.mutual, doc="mutual capacitances (F)")
+    potentials = property(lambda self: self._solved.potentials.copy(), doc="potentials (V)")
+    charges = property(lambda self: self._solved.charges, doc="charges (C) at the potentials")
+    energy = property(lambda self: self._solved.energy, doc="stored energy 1/2 V^T C V (J)")
+    floating = property(lambda self: dict(self._solved.floating),
+                        doc="{name: V} of floating conductors at the given potentials")
+    solver = property(lambda self: self._solved.solver, doc="how the charges were found")
+    timings = property(lambda self: self._solved.timings_s, doc="seconds by stage")
+
+    @property
+    def sigma(self):
+        """Charge density (C/m^2) on each panel at the given potentials."""
+        return self._solved.panel_sigma()
+
+    @property
+    def sigma_per_volt(self):
+        """Charge density (C/m^2) on each panel per volt on each conductor (n_panels, n)."""
+        return self._solved.sigma.copy()
+
+    @property
+    def panels(self):
+        """The conductor panels with their corners in `units`."""
+        return self._panels_m.transformed(scale=1.0 / LENGTH_UNITS[self.units])
+
+    def checks(self):
+        """The physical properties every Maxwell matrix must have, as measured."""
+        return self._solved.checks()
+
+    def table(self):
+        """The capacitance matrices, energy and checks as text in one readable unit."""
+        return self._solved.table()
+
+    def __repr__(self):
+        return (f"<bem3d Result: {len(self.names)} conductors, {len(self._panels_m)} panels, "
+                f"lengths in {self.units}>\n{self.table()}")
+
+    def _repr_html_(self):
+        scale, prefix = prefix_for(self._solved.maxwell)
+        head = "".join(f"<th>{html.escape(n)}</th>" for n in self.names)
+        parts = [f"<p>{len(self.names)} conductors, {len(self._panels_m)} panels, lengths in "
+                 f"{html.escape(self.units)}; stored energy {self.energy:.5g} J</p>"]
+        for title, matrix in (("Maxwell capacitance matrix", self._solved.maxwell),
+                              ("Mutual capacitance (diagonal: to infinity/ground)",
+                               self.mutual)):
+            rows = "".join(f"<tr><th>{html.escape(n)}</th>"
+                           + "".join(f"<td>{v / scale:.5g}</td>" for v in row) + "</tr>"
+                           for n, row in zip(self.names, matrix))
+            parts.append(f"<table><caption>{title} [{prefix}F]</caption>"
+                         f"<tr><th></th>{head}</tr>{rows}</table>")
+        return "".join(parts)
+
+    def to_dataframe(self, matrix="maxwell"):
+        """The Maxwell (or 'mutual') matrix in F as a pandas DataFrame labelled by conductor."""
+        import pandas as pd
+
+        values = {"maxwell": self._solved.maxwell, "mutual": self.mutual}[matrix]
+        return pd.DataFrame(values, index=list(self.names), columns=list(self.names))
+
+    def inputs(self):
+        """Every file the model reads (meshes, dielectric bodies, the model file)."""
+        return self.model.files()
+
+    def save(self, folder, force=False):
+        """Write result.json, capacitance.csv, the SPICE subcircuit and surface.vtp into
+        folder, all together or none; returns their paths."""
+        folder = Path(folder)
+        check_output_folder(folder, self.inputs(), output_names(self.model), force)
+        with staged_outputs(folder, self.inputs(), force) as stage:
+            written = write_outputs(stage, self._panels_m, self._solved, self.model,
+                                    self.warnings)
+        self.files = [folder / f.name for f in written]
+        return self.files
+
+
+class FieldResult(Result):
+    """A Result with its fields: grid, slices, listed points, energy balance, peaks, forces.
+
+    record: the energy balance (J), peak fields (V/m), forces (N) and torques (N m);
+    grid_arrays, slices and at: the evaluated arrays (SI; coordinates of `grid` in metres)."""
+
+    def __init__(self, solved, panels, model, warnings, field_map, png=False, point_file=None):
+        super().__init__(solved, panels, model, warnings)
+        self.field_map, self.png, self.point_file = field_map, png, point_file
+        self.picture_problems = []
+
+    record = property(lambda self: self.field_map.record)
+    grid_arrays = property(lambda self: self.field_map.grid_arrays)
+
+    @property
+    def at(self):
+        """{column: values} at the listed points, or None."""
+        return None if self.field_map.listed is None else self.field_map.listed[1]
+
+    def save(self, folder, force=False):
+        """Write the solve's files plus field.vti, the slices, points.csv and the pictures."""
+        folder = Path(folder)
+        inputs = self.inputs() + ([self.point_file] if self.point_file else [])
+        check_output_folder(folder, inputs, output_names(self.model), force)
+        with staged_outputs(folder, inputs, force) as stage:
+            written, self.picture_problems = write_field_files(
+                stage, self._panels_m, self._solved, self.model, self.field_map,
+                self.warnings, self.png)
+        self.files = [folder / f.name for f in written]
+        return self.files
+
