@@ -1,45 +1,28 @@
-"""Expected run time by stage, announced before a long run starts."""
+"""Expected run time by stage, announced before a long run starts.
+
+The rates are calibrated on the project's 2-core machine (tools/bench.py for the dense
+backend, tools/bench_scale.py for the compressed one, tools/bench_fields.py for fields; the
+README's speed tables hold the measurements) and scaled by the thread count elsewhere.
+"""
 
 import math
 
-
-
 #: Runs expected to take longer than this many seconds are announced with an estimate first.
 ANNOUNCE_SECONDS = 10.0
-
-
-#: Dense assembly: panel pairs per second per thread; measured on this project's 2-core
-#: machine (a 8,192-panel sphere assembled in 3.8 s on 2 threads).
+#: Dense assembly: panel pairs per second per thread.
 PAIR_RATE_PER_THREAD = 8.7e6
-
-
-#: Cholesky factorisation: floating-point operations per second per thread; measured there too
-#: (8,192 panels, N^3/3 flops, 26 s on 2 threads).
+#: Cholesky factorisation: floating-point operations per second per thread.
 FLOP_RATE_PER_THREAD = 3.5e9
-
-
-#: Conjugate gradients: iterations of a typical run (measured 18-50 on spheres and the demo) and
-#: bytes of matrix streamed per second in each product (measured: 21 products of a 0.5 GiB
-#: matrix in 1.1 s).
+#: Conjugate gradients: iterations of a typical run, and bytes of the dense matrix streamed
+#: per second in each product.
 CG_ITERATIONS = 50
-
-
 MATRIX_BYTES_PER_SECOND = 1e10
-
-
 #: Compressed backend: thread-seconds per N log2 N of assembly, and of one CG iteration with
-#: five right-hand sides; measured on this project's 2-core machine (tools/bench_scale.py: a
-#: 131,072-panel sphere assembled in 24.8 s; the 129,296-panel sensor head, five conductors,
-#: 48 iterations in 20.9 s).
+#: five right-hand sides.
 COMPRESSED_ASSEMBLY_SECONDS = 2.2e-5
-
-
 COMPRESSED_ITERATION_SECONDS = 4.0e-7
-
-
 #: Field evaluation: seconds per point-panel pair on one thread, a fixed part plus a part per
-#: excitation; measured there (8,192 panels x 40,000 points: 2.35 s with one excitation,
-#: 9.8 s with six, on 2 threads).
+#: excitation.
 FIELD_PAIR_SECONDS = (5.2e-9, 9.0e-9)
 
 

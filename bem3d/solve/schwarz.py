@@ -19,10 +19,8 @@ class SchwarzPreconditioner:
     space (hkernels.zero_charge_inverse of the principal block P_dd). Charges of zero total
     have a dipole's fast-decaying potential, so the local spaces barely couple; a subdomain's
     net charge acts far away and is left to the coarse solve. Plain block-Jacobi solves on
-    whole subdomains count that far action in every subdomain again: the largest eigenvalue
-    of M^-1 P then grows like the number of subdomains across the model (measured on the
-    sensor head: 14, 25, 47 at 8k, 32k, 127k panels, 33 to 48 CG iterations), whereas with the
-    zero-charge local spaces it stays near 2.4 (22 to 25 iterations). The abstract theory is
+    whole subdomains count that far action in every subdomain again, so their condition
+    number grows with the number of subdomains (README, Method). The abstract theory is
     that of stable splittings (Toselli & Widlund 2005, Domain Decomposition Methods,
     Springer, ch. 2); for first-kind integral equations Tran & Stephan 1996 (Applicable
     Analysis 60, 63-84). perm, bounds: subdomain d is panels perm[bounds[d]:bounds[d+1]];
