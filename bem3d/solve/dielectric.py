@@ -24,7 +24,7 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.linalg
 
-from bem3d.base.errors import MeshError, ModelError
+from bem3d.base.errors import MeshError, ModelError, option
 from bem3d.operators.points import winding_numbers
 from bem3d.geometry.panels import Panels
 from bem3d.kernels.pairs import assemble_normal_field
@@ -107,6 +107,21 @@ def interfaces(bodies, background, size):
     return panels, lam
 
 
+def _off_the_plane(inter, lam, bodies, ground_z, size):
+    """Interface panels not lying on the grounded plane z = ground_z (m). A body may stand on
+    the plane: a face on it carries bound charge that its own image cancels (method of
+    images), so the plane takes it; a body reaching below the plane is refused."""
+    tol = 1e-9 * size
+    low = [b.name for b in bodies if b.panels.vertices[..., 2].min() < ground_z - tol]
+    if low:
+        raise ModelError(f"{option('ground_plane')} z = {ground_z:g} m: dielectric body(ies) "
+                         f"{', '.join(low)} cross or lie below the plane; they may stand on it "
+                         "but not reach under it")
+    on_plane = np.all(np.abs(inter.vertices[..., 2] - ground_z) <= tol, axis=1)
+    keep = ~on_plane
+    return Panels(inter.vertices[keep], inter.owner[keep], inter.names), lam[keep]
+
+
 def _uncovered(inter, lam, conductors, size):
     """Interface panels not covered by a conductor: a dielectric face under a conductor's
     surface (a body touching a conductor) carries no separate charge of its own."""
@@ -164,17 +179,13 @@ class DielectricSystem:
 
 def plan_dielectrics(conductors, bodies, background=1.0, ground_z=None):
     """Check the bodies and find the interfaces: a DielectricSystem (no assembly yet).
-    ground_z: height (m) of an infinite grounded plane; every body must lie above it."""
+    ground_z: height (m) of an infinite grounded plane; bodies may stand on it."""
     check_bodies(bodies)
-    if ground_z is not None:
-        low = all_body_panels(bodies).names_reaching(ground_z)
-        if low:
-            raise ModelError(f"--ground-plane z = {ground_z:g} m: dielectric body(ies) "
-                             f"{', '.join(low)} touch, cross or lie below the plane; all must "
-                             "lie above it")
     v = conductors.vertices.reshape(-1, 3)
     size = float(np.max(v.max(axis=0) - v.min(axis=0)))
     inter, lam = interfaces(bodies, background, size)
+    if ground_z is not None:
+        inter, lam = _off_the_plane(inter, lam, bodies, ground_z, size)
     inter, lam = _uncovered(inter, lam, conductors, size)
     delta = 1e-6 * size
     eps_out = medium_at(conductors.centroids + delta * conductors.normals, bodies, background)

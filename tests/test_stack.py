@@ -1,0 +1,120 @@
+"""Metal on laminate: zero-thickness conductors whose two faces see different media, bodies
+lying on the grounded plane, bodies stacked on each other.
+
+References:
+* spherical capacitor filled with a dielectric, from Gauss's law with D = eps E between the
+  spheres (any electrostatics text, e.g. Jackson, Classical Electrodynamics, 3rd ed. 1999,
+  sec. 4.4): C = 4 pi eps0 eps_r a b / (b - a) between spheres of radii a < b;
+* a closed conductor screens its inside (Jackson 1999, sec. 1.12): the capacitance of a closed
+  sheet sphere of radius a to infinity is 4 pi eps0 a whatever fills it;
+* the method of images (Jackson 1999, sec. 2.1): a grounded plane equals, above it, the mirror
+  images of every charge, free or bound, with the opposite sign;
+* microstrip: Hammerstad & Jensen 1980, "Accurate models for microstrip computer-aided
+  design", IEEE MTT-S Int. Microwave Symp. Digest, pp. 407-409 (the quasi-static effective
+  permittivity and characteristic impedance of a strip of width w on a substrate of height h).
+"""
+
+import math
+
+import numpy as np
+import pytest
+
+import reference_values as ref
+from bem3d.base.errors import MeshError, ModelError
+from bem3d.geometry import shapes
+from bem3d.geometry.bodies import DielectricBody
+from bem3d.geometry.panels import Panels
+from bem3d.solve.conductors import solve_panels
+from bem3d.solve.dielectric import solve_with_dielectrics
+
+EPS0 = ref.EPS0
+
+
+def sphere(radius, m, name="s", inward=False, centre=(0.0, 0.0, 0.0)):
+    p, t = shapes.octahedral_sphere(radius, m, center=centre)
+    t = t[:, ::-1] if inward else t
+    return Panels.from_arrays(p, t, np.zeros(len(t), int), (name,))
+
+
+def joined(*parts):
+    """One Panels of several single-conductor Panels, conductor k = part k."""
+    return Panels(np.concatenate([p.vertices for p in parts]),
+                  np.concatenate([np.full(len(p), k) for k, p in enumerate(parts)]),
+                  tuple(p.names[0] for p in parts))
+
+
+def shell_body(a, b, m, eps_r):
+    """A dielectric shell a < r < b: the outer sphere outward, the inner one inward."""
+    outer, inner = sphere(b, m), sphere(a, m, inward=True)
+    return DielectricBody("shell", eps_r, Panels(np.concatenate([outer.vertices, inner.vertices]),
+                                                 np.zeros(len(outer) + len(inner), int),
+                                                 ("shell",)))
+
+
+@pytest.mark.parametrize("eps_r", [1.0, 4.0])
+def test_filled_spherical_capacitor_with_sheet_electrodes(eps_r):
+    # two closed sheet spheres a = 1, b = 2 with a dielectric shell exactly between them (its
+    # faces meshed as the electrodes): the inner pair has C = 4 pi eps0 eps_r a b / (b - a);
+    # the outer sphere also sees infinity, C_22 = that + 4 pi eps0 b (Gauss's law)
+    a, b, m = 1.0, 2.0, 12
+    conductors = joined(sphere(a, m, "inner"), sphere(b, m, "outer"))
+    c = solve_with_dielectrics(conductors, [shell_body(a, b, m, eps_r)]).maxwell
+    pair = 4 * math.pi * EPS0 * eps_r * a * b / (b - a)
+    exact = np.array([[pair, -pair], [-pair, pair + 4 * math.pi * EPS0 * b]])
+    # 1152 panels per sphere: the flat-panel error of the bare spheres is about 0.5 %
+    np.testing.assert_allclose(c, exact, rtol=1e-2)
+    np.testing.assert_allclose(c, c.T, rtol=1e-12)
+
+
+@pytest.mark.parametrize("eps_r", [2.0, 10.0])
+def test_a_closed_sheet_screens_the_ball_it_encloses(eps_r):
+    # Jackson 1999, sec. 1.12: C = 4 pi eps0 a whatever fills the closed conductor
+    shell = sphere(1.0, 10, "can")
+    ball = DielectricBody("ball", eps_r, sphere(0.6, 8, "ball"))
+    c = solve_with_dielectrics(shell, [ball]).maxwell[0, 0]
+    assert c == pytest.approx(4 * math.pi * EPS0 * 1.0, rel=1.5e-2)
+    filled = DielectricBody("filling", eps_r, sphere(1.0, 10, "filling"))
+    c_filled = solve_with_dielectrics(shell, [filled]).maxwell[0, 0]
+    assert c_filled == pytest.approx(c, rel=1e-9)
+
+
+def exact_mirror(panels, z0):
+    """The mirror image in z = z0, corners 1 and 2 swapped so that the graded test rule (a
+    Duffy map from corner 0) maps onto the exact mirrors of the original's points."""
+    v = panels.vertices[:, [0, 2, 1]].copy()
+    v[..., 2] = 2.0 * z0 - v[..., 2]
+    return Panels(v, panels.owner, panels.names)
+
+
+def box_panels(lx, ly, lz, m, centre, name):
+    p, t = shapes.box(lx, ly, lz, m, grading=0.5, center=centre)
+    return Panels.from_arrays(p, t, np.zeros(len(t), int), (name,))
+
+
+def test_substrate_standing_on_the_plane_equals_the_mirrored_model():
+    # method of images (Jackson 1999, sec. 2.1): a board standing on the grounded plane z = 0
+    # with a pad above it, at +1 V, holds the charge of the same pad and board next to their
+    # mirror copies (the board doubled, the pad at -1 V) with no plane. The two boards share
+    # their face on z = 0, meshed identically, so that face carries no charge: exactly what
+    # the plane's images do with it.
+    board = DielectricBody("board", 4.4, box_panels(2.0, 2.0, 0.5, 6, (0, 0, 0.25), "board"))
+    pad = box_panels(0.6, 0.6, 0.1, 4, (0.2, 0.0, 0.7), "pad")
+    over_plane = solve_with_dielectrics(pad, [board], ground_z=0.0)
+    low_pad = exact_mirror(pad, 0.0)
+    pair = Panels(np.concatenate([pad.vertices, low_pad.vertices]),
+                  np.repeat([0, 1], len(pad)), ("up", "down"))
+    low_board = DielectricBody("low board", 4.4, exact_mirror(board.panels, 0.0))
+    free = solve_with_dielectrics(pair, [board, low_board])
+    q_up = float(pad.areas @ (free.sigma[:len(pad), 0] - free.sigma[:len(pad), 1]))
+    assert over_plane.maxwell[0, 0] == pytest.approx(q_up, rel=1e-9)
+    # and the board raises the pad's capacitance to ground (a dielectric only adds
+    # capacitance: Thomson's theorem, from memory)
+    bare = solve_panels(pad, ground_z=0.0).maxwell[0, 0]
+    assert over_plane.maxwell[0, 0] > 1.2 * bare
+
+
+def test_a_body_reaching_below_the_plane_is_refused():
+    board = DielectricBody("board", 4.4, box_panels(2.0, 2.0, 0.5, 4, (0, 0, 0.2), "board"))
+    pad = box_panels(0.6, 0.6, 0.1, 4, (0.0, 0.0, 0.7), "pad")
+    with pytest.raises(ModelError, match="board cross or lie below the plane"):
+        solve_with_dielectrics(pad, [board], ground_z=0.0)
