@@ -14,13 +14,15 @@ import json
 import meshio
 import numpy as np
 import pytest
-
 import reference_values as ref
-from bem3d.geometry import shapes
-from bem3d.post.convergence import (add_converge_parser, converge, richardson, run_converge, subdivide)
-from bem3d.geometry.bodies import DielectricBody
-from bem3d.mesh_io.read import mesh_summary
 from conftest import make_panels
+
+from bem3d._cli import converge as converge_command
+from bem3d.geometry import shapes
+from bem3d.geometry.bodies import DielectricBody
+from bem3d.geometry.refine import subdivide
+from bem3d.mesh_io.read import mesh_summary
+from bem3d.post.convergence import converge, richardson
 
 SQUARE_PLATE = 0.3667892 * 4 * np.pi * ref.EPS0         # F per metre of side (Read 1997)
 
@@ -116,11 +118,11 @@ def test_converge_command_writes_every_mesh_and_the_table(tmp_path, capsys):
     mesh = tmp_path / "ball.vtu"
     meshio.write(mesh, meshio.Mesh(points, [("triangle", tris)]))
     parser = argparse.ArgumentParser(prog="bem3d")
-    add_converge_parser(parser.add_subparsers(dest="command"))
+    converge_command.add_parser(parser.add_subparsers(dest="command"))
     out = tmp_path / "conv"
     args = parser.parse_args(["converge", str(mesh), "--units", "mm", "--volts", "ball=3",
                               "--ground-plane", "-3", "--refinements", "1", "--out", str(out)])
-    assert run_converge(args) == 0
+    assert converge_command.run(args) == 0
     text = capsys.readouterr().out
     assert "maxwell ball:ball" in text and "assumed order 2" in text
     record = json.loads((out / "convergence.json").read_text())

@@ -17,33 +17,37 @@ import sys
 import meshio
 import numpy as np
 import pytest
+from conftest import default_sigint, make_panels
 from scipy.spatial.transform import Rotation
 
-from bem3d.geometry import shapes
+from bem3d._cli.sweep import add_parser
+from bem3d._cli.sweep import run as command
+from bem3d.api import extract
 from bem3d.base.constants import EPS0
 from bem3d.base.errors import Bem3dError
+from bem3d.geometry import shapes
+from bem3d.geometry.moves import move_conductors
 from bem3d.model import Model
-from bem3d.api import extract
+from bem3d.post.sweep.run import SweepRequest, run_sweep
+from bem3d.post.sweep.syntax import parse_entry, parse_move, parse_values
 from bem3d.solve.conductors import solve_panels
-from bem3d.post.sweep import (add_sweep_parser, move_conductors, parse_entry, parse_move, parse_values, run_sweep)
-from conftest import default_sigint, make_panels
 
 PLATE = dict(lx=1.0, ly=1.0, nx=8, ny=8, grading=0.5)      # 128 panels
 GAP0 = 0.1                                                  # mm, top plate's height at rest
 
 SCRIPT = """
 import argparse, sys
-from bem3d.post.sweep import add_sweep_parser, run_sweep
+from bem3d._cli import sweep
 if __name__ == "__main__":
     parser = argparse.ArgumentParser(prog="bem3d")
-    add_sweep_parser(parser.add_subparsers(dest="command"))
-    sys.exit(run_sweep(parser.parse_args(sys.argv[1:])))
+    sweep.add_parser(parser.add_subparsers(dest="command"))
+    sys.exit(sweep.run(parser.parse_args(sys.argv[1:])))
 """
 
 
 def parse(*argv):
     parser = argparse.ArgumentParser(prog="bem3d")
-    add_sweep_parser(parser.add_subparsers(dest="command"))
+    add_parser(parser.add_subparsers(dest="command"))
     return parser.parse_args(["sweep", *map(str, argv)])
 
 
@@ -121,8 +125,8 @@ def test_moves_touch_only_the_named_conductors():
 
 def test_gap_sweep_is_monotone_and_equals_direct_extract(plates, tmp_path, capsys):
     out = tmp_path / "gap"
-    code = run_sweep(parse(*plates, "--units", "mm", "--translate", "top:z=0:0.6:4",
-                           "--workers", 1, "--out", out))
+    code = command(parse(*plates, "--units", "mm", "--translate", "top:z=0:0.6:4",
+                         "--workers", 1, "--out", out))
     assert code == 0
     rows = summary(out)
     assert [r["status"] for r in rows] == ["ok"] * 4
@@ -149,14 +153,41 @@ def test_gap_sweep_is_monotone_and_equals_direct_extract(plates, tmp_path, capsy
     assert (out / "summary.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
 
 
+def test_sweep_from_python_prints_nothing_and_matches_the_command(plates, tmp_path, capsys):
+    model = Model(meshes=list(plates), length_unit="mm", volts={"top": 1.0})
+    request = SweepRequest(model=model, moves=[parse_move("translate", "top:z=0,0.3")],
+                           workers=1, out=tmp_path / "api")
+    seen = []
+    outcome = run_sweep(request, on_event=seen.append)
+    assert capsys.readouterr() == ("", "")
+    assert [e["event"] for e in seen] == ["start", "case", "case", "done"]
+    assert not outcome.interrupted and (outcome.ok, outcome.failed, outcome.solved) == (2, 0, 2)
+    assert [r["label"] for r in outcome.records] == [r["label"] for r in outcome.rows]
+    assert [{k: str(v) for k, v in r.items()} for r in outcome.rows] == summary(tmp_path / "api")
+    assert command(parse(*plates, "--units", "mm", "--volts", "top=1", "--translate",
+                         "top:z=0,0.3", "--workers", 1, "--out", tmp_path / "cli")) == 0
+    for row, cli in zip(outcome.rows, summary(tmp_path / "cli")):
+        # same panels, same code, same thread count: the same numbers
+        for column in ("mutual_F:bottom:top", "maxwell_F:top:top", "energy_J"):
+            assert row[column] == cli[column]
+    for k, shift in enumerate([0.0, 0.3]):
+        # W = 1/2 V^T C V with V = (0, 1): half the top plate's Maxwell entry (closed form)
+        c = np.array(outcome.records[k]["maxwell_capacitance_F"])
+        assert outcome.records[k]["energy_J"] == pytest.approx(0.5 * c[1, 1], rel=1e-12)
+        direct = solve_panels(make_panels(("bottom", plate(0.0)),
+                                          ("top", plate(GAP0 + shift)))).maxwell * 1e-3
+        # metres vs millimetres: the same panels scaled, so equal up to tier flips (~1e-10)
+        assert c[0, 1] == pytest.approx(direct[0, 1], rel=1e-9)
+
+
 def test_potential_change_reuses_cached_matrices(plates, tmp_path, capsys):
     out = tmp_path / "gap"
-    assert run_sweep(parse(*plates, "--translate", "top:z=0,0.2", "--workers", 1, "--out", out,
-                           "--json-lines")) == 0
+    assert command(parse(*plates, "--translate", "top:z=0,0.2", "--workers", 1, "--out", out,
+                         "--json-lines")) == 0
     first = events(capsys.readouterr().out)
     assert len(solved(first)) == 2
-    assert run_sweep(parse(*plates, "--translate", "top:z=0,0.2", "--workers", 1, "--out", out,
-                           "--json-lines", "--volts", "top=2")) == 0
+    assert command(parse(*plates, "--translate", "top:z=0,0.2", "--workers", 1, "--out", out,
+                         "--json-lines", "--volts", "top=2")) == 0
     second = events(capsys.readouterr().out)
     assert solved(second) == []
     assert sorted(e["how"] for e in second if e["event"] == "case") == ["cached", "cached"]
@@ -172,18 +203,18 @@ def test_ground_plane_and_floating_conductor_follow_extract(plates, tmp_path, ca
     out = tmp_path / "gap"
     options = ["--units", "mm", "--ground-plane", "-0.3", "--floating", "top"]
     argv = [*plates, *options, "--translate", "top:z=0,0.3", "--workers", 1, "--out", out]
-    assert run_sweep(parse(*argv, "--volts", "bottom=1")) == 0
+    assert command(parse(*argv, "--volts", "bottom=1")) == 0
     rows = summary(out)
     for k, shift in enumerate([0.0, 0.3]):
         (tmp_path / f"direct{k}").mkdir()
         moved = write_mesh(tmp_path / f"direct{k}" / "top.vtu", plate(GAP0 + shift))
         direct = extract(Model(meshes=[plates[0], moved], length_unit="mm",
-                                     ground_plane_z=-0.3, floating=["top"]))
+                               ground_plane_z=-0.3, floating=["top"]))
         assert direct.names == ("bottom",)
         assert float(rows[k]["maxwell_F:bottom:bottom"]) == pytest.approx(direct.maxwell[0, 0],
                                                                           rel=1e-9)
     before = [json.loads((out / "cases" / r["label"] / "result.json").read_text()) for r in rows]
-    assert run_sweep(parse(*argv, "--volts", "bottom=2", "--json-lines")) == 0
+    assert command(parse(*argv, "--volts", "bottom=2", "--json-lines")) == 0
     assert solved(events(capsys.readouterr().out)) == []
     for row, old in zip(rows, before):
         new = json.loads((out / "cases" / row["label"] / "result.json").read_text())
@@ -196,14 +227,14 @@ def test_ground_plane_and_floating_conductor_follow_extract(plates, tmp_path, ca
 def test_dielectric_body_stays_while_a_conductor_moves(plates, tmp_path, capsys):
     slab = write_mesh(tmp_path / "slab.vtu", shapes.box(0.8, 0.8, 0.04, 4, center=(0, 0, 0.05)))
     out = tmp_path / "gap"
-    assert run_sweep(parse(*plates, "--units", "mm", "--dielectric", f"{slab}=4",
-                           "--translate", "top:z=0,0.2", "--workers", 1, "--out", out)) == 0
+    assert command(parse(*plates, "--units", "mm", "--dielectric", f"{slab}=4",
+                         "--translate", "top:z=0,0.2", "--workers", 1, "--out", out)) == 0
     rows = summary(out)
     for k, shift in enumerate([0.0, 0.2]):
         (tmp_path / f"direct{k}").mkdir()
         moved = write_mesh(tmp_path / f"direct{k}" / "top.vtu", plate(GAP0 + shift))
         direct = extract(Model(meshes=[plates[0], moved], length_unit="mm",
-                                     dielectrics=[(slab, 4.0)]))
+                               dielectrics=[(slab, 4.0)]))
         assert float(rows[k]["mutual_F:bottom:top"]) == pytest.approx(direct.mutual[0, 1],
                                                                       rel=1e-9)
     # the slab adds coupling (a dielectric raises capacitance: Thomson's theorem, from memory)
@@ -214,8 +245,8 @@ def test_dielectric_body_stays_while_a_conductor_moves(plates, tmp_path, capsys)
 def test_broken_case_is_reported_and_the_others_finish(plates, tmp_path, capsys):
     out = tmp_path / "gap"
     # -0.1 mm puts the top plate onto the bottom one: those conductors touch
-    code = run_sweep(parse(*plates, "--units", "mm", "--translate", "top:z=0.2,-0.1,0.4",
-                           "--workers", 1, "--out", out))
+    code = command(parse(*plates, "--units", "mm", "--translate", "top:z=0.2,-0.1,0.4",
+                         "--workers", 1, "--out", out))
     assert code == 1
     rows = summary(out)
     assert [r["status"] for r in rows] == ["ok", "failed", "ok"]
@@ -232,8 +263,8 @@ def test_each_file_is_a_case_and_a_bad_file_fails_alone(plates, tmp_path, capsys
     (cases / "pair.toml").write_text(f'meshes = ["{plates[0]}", "{plates[1]}"]\n'
                                      'relative_permittivity = 3.0\n')
     out = tmp_path / "each"
-    code = run_sweep(parse("--each", cases / "*.vtu", cases / "pair.toml", "--workers", 1,
-                           "--out", out))
+    code = command(parse("--each", cases / "*.vtu", cases / "pair.toml", "--workers", 1,
+                         "--out", out))
     assert code == 1
     rows = {r["input"].rsplit("/", 1)[-1]: r for r in summary(out)}
     assert rows["broken.vtu"]["status"] == "failed" and "cannot read" in rows["broken.vtu"]["error"]
@@ -248,7 +279,7 @@ def test_each_file_is_a_case_and_a_bad_file_fails_alone(plates, tmp_path, capsys
 
 def test_scaling_every_conductor_scales_the_matrix(plates, tmp_path, capsys):
     out = tmp_path / "scale"
-    assert run_sweep(parse(*plates, "--scale", "*=1,2.5", "--workers", 1, "--out", out)) == 0
+    assert command(parse(*plates, "--scale", "*=1,2.5", "--workers", 1, "--out", out)) == 0
     small, big = summary(out)
     # capacitance is proportional to size (closed form); tier flips at thresholds ~1e-10
     for column in ("mutual_F:bottom:top", "maxwell_F:top:top"):
@@ -298,7 +329,7 @@ def test_killed_and_interrupted_sweep_resumes_without_repeating(plates, tmp_path
     assert after_interrupt == after_kill | set(solved(second)) and len(after_interrupt) < 8
     assert "not run" in {r["status"] for r in summary(out)}
 
-    assert run_sweep(parse(*argv, "--json-lines")) == 0
+    assert command(parse(*argv, "--json-lines")) == 0
     third = events(capsys.readouterr().out)
     assert {e["label"] for e in third if e.get("how") == "skipped"} == after_interrupt
     # Solver runs over the three runs: each case once, none repeated. (A case whose solve
@@ -319,11 +350,11 @@ def test_killed_and_interrupted_sweep_resumes_without_repeating(plates, tmp_path
 def test_dask_cluster_gives_the_numbers_of_the_local_pool(plates, tmp_path, capsys):
     distributed = pytest.importorskip("distributed")
     argv = [*plates, "--translate", "top:z=0:0.3:4", "--threads", 1]
-    assert run_sweep(parse(*argv, "--workers", 2, "--out", tmp_path / "local")) == 0
+    assert command(parse(*argv, "--workers", 2, "--out", tmp_path / "local")) == 0
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
                                   dashboard_address=None) as cluster:
-        assert run_sweep(parse(*argv, "--scheduler", cluster.scheduler_address, "--json-lines",
-                               "--out", tmp_path / "dask")) == 0
+        assert command(parse(*argv, "--scheduler", cluster.scheduler_address, "--json-lines",
+                             "--out", tmp_path / "dask")) == 0
     start = events(capsys.readouterr().out)[0]
     assert start["executor"] == "dask" and start["workers"] == 2
     local, remote = summary(tmp_path / "local"), summary(tmp_path / "dask")
@@ -342,5 +373,5 @@ def test_bad_sweep_requests_are_errors(plates, tmp_path):
                  [*plates, "--translate", "top:z=1", "--volts", "lid=1"],
                  ["--each", tmp_path / "none*.vtu"]]:
         with pytest.raises(Bem3dError):
-            run_sweep(parse(*argv, "--out", tmp_path / "bad"))
+            command(parse(*argv, "--out", tmp_path / "bad"))
     assert not (tmp_path / "bad").exists()

@@ -23,19 +23,20 @@ from pathlib import Path
 
 import meshio
 
+from bem3d._cli import sweep as sweep_command
 from bem3d.geometry import shapes
-from bem3d.post.sweep import add_sweep_parser, available_cores, run_sweep
+from bem3d.post.sweep.executors import available_cores
 
 
 def sweep(argv):
     """Run one sweep quietly; (wall seconds, exit code, JSON events)."""
     parser = argparse.ArgumentParser(prog="bem3d")
-    add_sweep_parser(parser.add_subparsers(dest="command"))
+    sweep_command.add_parser(parser.add_subparsers(dest="command"))
     args = parser.parse_args(["sweep", *map(str, argv), "--json-lines"])
     out = io.StringIO()
     start = time.perf_counter()
     with contextlib.redirect_stdout(out):
-        code = run_sweep(args)
+        code = sweep_command.run(args)
     return time.perf_counter() - start, code, [json.loads(x) for x in out.getvalue().splitlines()]
 
 

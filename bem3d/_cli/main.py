@@ -3,11 +3,9 @@
 import argparse
 import sys
 
-from bem3d._cli import check_mesh, demo, extract, field
+from bem3d._cli import check_mesh, converge, demo, extract, field, sweep
 from bem3d.base.errors import Bem3dError
 from bem3d.base.version import __version__
-from bem3d.post import convergence as converge
-from bem3d.post import sweep
 
 EXIT_BAD_INPUT = 2
 EXIT_INTERRUPTED = 130
@@ -34,10 +32,8 @@ def _parser():
     parser.add_argument("--version", action="version", version=f"bem3d {__version__}")
     parser.add_argument("--debug", action="store_true", help="show tracebacks")
     sub = parser.add_subparsers(dest="command", required=True)
-    for command in (extract, field, demo, check_mesh):
+    for command in (extract, field, demo, check_mesh, sweep, converge):
         command.add_parser(sub).set_defaults(run=command.run)
-    sweep.add_sweep_parser(sub).set_defaults(run=sweep.run_sweep)
-    converge.add_converge_parser(sub).set_defaults(run=converge.run_converge)
     return parser
 
 

@@ -1,0 +1,56 @@
+"""case.json: what a finished or failed case leaves in its folder, and what a re-run reads back."""
+
+import json
+
+from bem3d.base.errors import Bem3dError
+from bem3d.base.files import atomic_path
+
+
+def case_record(case, keys, result=None, error=None):
+    """What case.json holds for a finished (result) or failed (error text) case; keys: the
+    (solve key, case key) pair, or None if the case failed before they were known."""
+    record = {"case": case.index, "label": case.label, "key": keys[1] if keys else None,
+              "solve_key": keys[0] if keys else None, "parameters": case.parameters,
+              "status": "ok" if error is None else "failed", "error": error}
+    if result is not None:
+        record.update(conductors=list(result.names),
+                      maxwell_capacitance_F=result.maxwell.tolist(),
+                      potentials_V=result.potentials.tolist(),
+                      floating_potentials_V=result.floating, energy_J=result.energy,
+                      panels=result.n_panels, solve_seconds=result.timings_s.get("total", 0.0))
+    return record
+
+
+def read_record(folder):
+    """The case.json in folder, or None if there is none or it does not parse."""
+    try:
+        return json.loads((folder / "case.json").read_text())
+    except (OSError, ValueError):
+        return None
+
+
+def clear_folder(folder):
+    """Empty a case folder before new results go in (stale files would mislead)."""
+    if folder.is_dir():
+        for f in folder.iterdir():
+            if f.is_file():
+                f.unlink()
+
+
+def write_record(folder, record):
+    """folder/case.json, written atomically."""
+    with atomic_path(folder / "case.json") as tmp:
+        tmp.write_text(json.dumps(record, indent=2) + "\n", encoding="utf-8")
+
+
+def error_text(err):
+    """The message a failed case records: a user's error as it is, anything else with its type."""
+    return str(err) if isinstance(err, Bem3dError) else f"{type(err).__name__}: {err}"
+
+
+def record_failure(folder, case, keys, err):
+    """Record a failed case (its error in case.json, no results); the sweep goes on."""
+    record = case_record(case, keys, error=error_text(err))
+    clear_folder(folder)
+    write_record(folder, record)
+    return record
