@@ -7,11 +7,11 @@
 Lengths are in the model's unit going in and coming out; quantities are SI.
 """
 
-from bem3d.api import Geometry, extract, field, read
+from bem3d.api import Geometry, converge, extract, field, read, sweep
 from bem3d.base.errors import Bem3dError, MeshError, ModelError, ResourceError
 from bem3d.base.version import __version__
 from bem3d.model import Model
 from bem3d.result import FieldResult, Result
 
-__all__ = ["extract", "field", "read", "Result", "FieldResult", "Geometry", "Model",
+__all__ = ["extract", "field", "sweep", "converge", "read", "Result", "FieldResult", "Geometry", "Model",
            "Bem3dError", "MeshError", "ModelError", "ResourceError", "__version__"]

@@ -18,7 +18,12 @@ from bem3d.mesh_io.bodies import read_bodies
 from bem3d.mesh_io.read import mesh_summary, read_conductors
 from bem3d.model import Model, build_model
 from bem3d.operators.hmatrix import Compression
+from bem3d.export.convergence import write_convergence
+from bem3d.geometry.refine import CREASE_DEGREES
+from bem3d.post.convergence import converge_model
 from bem3d.post.field_map import compute_field_map, field_request
+from bem3d.post.sweep.run import SweepRequest, run_sweep
+from bem3d.post.sweep.syntax import parse_entry, parse_move
 from bem3d.result import FieldResult, Result
 from bem3d.solve.backend import choose_backend
 from bem3d.solve.conductors import solve_panels
@@ -179,3 +184,54 @@ def field(inputs, *, box=None, margin=0.5, spacing=None, points=41, slices=(), a
         result.save(out, force)
     return result
 
+
+
+def sweep(inputs, *, moves=(), each=False, entries=(), units=None, volts=None, eps_r=None,
+          ground_plane=None, floating=(), dielectrics=(), solver="auto", tol=1e-7,
+          workers=None, threads=None, scheduler=None, cache=None, out="bem3d_sweep",
+          on_event=None):
+    """Run many extractions, resumable, into the folder `out`: a post.sweep.run.SweepOutcome
+    (records, summary rows, counts).
+
+    moves: variations in the command line's syntax, applied in the order given, every
+    combination a case, e.g. [("translate", "top:z=0.1:2:20"), ("rotate",
+    "lid:x@0,0,1.5=-10:10:5"), ("scale", "pad_a,pad_b=0.8,1,1.2")] (lengths in the model's
+    unit). each=True instead runs every input (mesh or .toml file, wildcards allowed) as its
+    own case. entries: 'mutual:A:B' or 'maxwell:A:B' for the summary. workers, threads,
+    scheduler: where the cases run (local processes, or a Dask scheduler address).
+    on_event(dict) receives the progress events."""
+    def model(paths):
+        return build_model(paths, units=units, volts=volts, eps_r=eps_r,
+                           ground_plane=ground_plane, floating=floating,
+                           dielectrics=dielectrics, out=".")
+
+    inputs = [inputs] if isinstance(inputs, (str, Path)) else list(inputs)
+    entries = [entries] if isinstance(entries, str) else list(entries)
+    request = SweepRequest(model=model, inputs=[str(p) for p in inputs],
+                           moves=[parse_move(kind, text) for kind, text in moves], each=each,
+                           entries=[parse_entry(e) for e in entries], solver=solver, tol=tol,
+                           workers=workers, threads=threads, scheduler=scheduler,
+                           cache=cache, out=Path(out))
+    return run_sweep(request, on_event=on_event)
+
+
+def converge(inputs, *, refinements=2, flat=False, crease_angle=CREASE_DEGREES, units=None,
+             volts=None, eps_r=None, ground_plane=None, floating=(), dielectrics=(),
+             solver="auto", tol=1e-7, out=None, progress=False):
+    """Solve the model on its mesh and on one or two midpoint subdivisions: a
+    post.convergence.Convergence (each entry on each mesh, Richardson values, error
+    estimates, observed orders; .table() for text). Edges whose panels meet at less than
+    crease_angle degrees get curved midpoints unless flat; .warnings are the base mesh's. out:
+    also write convergence.json/.csv and each mesh's files there."""
+    if not 0.0 < crease_angle < 180.0:
+        raise ModelError(f"{option('crease_angle')} must be between 0 and 180 degrees, got "
+                         f"{crease_angle:g}")
+    if refinements not in (1, 2):
+        raise ModelError(f"{option('refinements')} must be 1 or 2, got {refinements}")
+    model = model_of(inputs, units=units, volts=volts, eps_r=eps_r, ground_plane=ground_plane,
+                     floating=floating, dielectrics=dielectrics)
+    conv = converge_model(model, refinements, not flat, crease_angle, solver, tol,
+                          progress=progress)
+    if out is not None:
+        write_convergence(conv, Path(out), model, conv.warnings)
+    return conv

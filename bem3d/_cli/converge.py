@@ -3,11 +3,9 @@
 import sys
 from pathlib import Path
 
+from bem3d import api
 from bem3d._cli.options import add_model_options, model_from_args
-from bem3d.base.errors import ModelError
-from bem3d.export.convergence import write_convergence
 from bem3d.geometry.refine import CREASE_DEGREES
-from bem3d.post.convergence import converge_model
 
 
 def add_parser(subparsers):
@@ -37,20 +35,15 @@ def add_parser(subparsers):
 
 def run(args):
     """Run the parsed 'converge' command: exit code 0; bad input raises Bem3dError."""
-    if not 0.0 < args.crease_angle < 180.0:
-        raise ModelError(f"--crease-angle must be between 0 and 180 degrees, got "
-                         f"{args.crease_angle:g}")
     model = model_from_args(args)
-    if args.out is None:
-        model.output_folder = Path(f"{Path(args.inputs[0]).stem}_converge")
-    conv, warnings = converge_model(model, args.refinements, not args.flat, args.crease_angle,
-                                    args.solver, args.tol, progress=not args.quiet)
-    folder = Path(model.output_folder)
-    files = write_convergence(conv, folder, model, warnings)
+    folder = args.out or Path(f"{Path(args.inputs[0]).stem}_converge")
+    conv = api.converge(model, refinements=args.refinements, flat=args.flat,
+                        crease_angle=args.crease_angle, solver=args.solver, tol=args.tol,
+                        out=folder, progress=not args.quiet)
     if not args.quiet:
-        for w in warnings:
+        for w in conv.warnings:
             print(f"warning: {w}", file=sys.stderr)
         print(conv.table())
-        print(f"wrote {', '.join(f.name for f in files)} and mesh_0 .. mesh_{args.refinements} "
-              f"to {folder}")
+        print(f"wrote convergence.json, convergence.csv and mesh_0 .. "
+              f"mesh_{args.refinements} to {folder}")
     return 0

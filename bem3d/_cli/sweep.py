@@ -4,11 +4,10 @@ import argparse
 import json
 import sys
 from pathlib import Path
-from types import SimpleNamespace
 
-from bem3d._cli.options import add_model_options, model_from_args
-from bem3d.post.sweep.run import SweepRequest, run_sweep
-from bem3d.post.sweep.syntax import parse_entry, parse_move
+from bem3d import api
+from bem3d._cli.options import add_model_options
+from bem3d.model import parse_dielectrics, parse_volts
 
 #: Largest exit code used for "this many cases failed" (126 and above mean other things to shells).
 MAX_EXIT = 125
@@ -116,16 +115,11 @@ class _Progress:
 def run(args):
     """Run the parsed 'sweep' command; exit code = number of failed cases (at most MAX_EXIT),
     EXIT_INTERRUPTED after Ctrl-C. Bad input raises Bem3dError."""
-    def model(inputs):
-        # Every model option of the sweep's parser is passed on; the output folder is the case's.
-        return model_from_args(SimpleNamespace(**{**vars(args), "inputs": list(inputs),
-                                                  "out": Path(".")}))
-
-    moves = [parse_move(kind, text) for kind, text in args.moves]
-    entries = [parse_entry(e) for e in args.entries]
-    request = SweepRequest(model=model, inputs=args.inputs, moves=moves, each=args.each,
-                           entries=entries, solver=args.solver, tol=args.tol,
-                           workers=args.workers, threads=args.threads,
-                           scheduler=args.scheduler, cache=args.cache, out=args.out)
-    outcome = run_sweep(request, on_event=_Progress(args.json_lines))
+    outcome = api.sweep(args.inputs, moves=args.moves, each=args.each, entries=args.entries,
+                        units=args.units, volts=parse_volts(args.volts), eps_r=args.eps_r,
+                        ground_plane=args.ground_plane, floating=args.floating,
+                        dielectrics=parse_dielectrics(args.dielectric), solver=args.solver,
+                        tol=args.tol, workers=args.workers, threads=args.threads,
+                        scheduler=args.scheduler, cache=args.cache,
+                        out=args.out or "bem3d_sweep", on_event=_Progress(args.json_lines))
     return EXIT_INTERRUPTED if outcome.interrupted else min(outcome.failed, MAX_EXIT)

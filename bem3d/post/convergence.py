@@ -74,6 +74,7 @@ class Convergence:
     maxwell: Extrapolation
     mutual: Extrapolation
     smooth: bool
+    warnings: list = dataclasses.field(default_factory=list)     # the base mesh's
 
     @property
     def names(self):
@@ -144,10 +145,10 @@ def mesh_sources(model, panels):
 def converge_model(model, refinements=2, smooth=True, crease_degrees=CREASE_DEGREES,
                    solver="auto", tol=1e-7, progress=False):
     """The convergence study of a Model: its meshes read (metres) and refined with its
-    dielectric bodies, solved at its potentials; returns (Convergence, the mesh warnings)."""
+    dielectric bodies, solved at its potentials; the Convergence holds the mesh warnings."""
     panels, warnings = read_conductors(model.meshes, units=model.length_unit)
     conv = converge(panels, refinements, smooth, crease_degrees, model.volts,
                     model.relative_permittivity, solver, tol, progress,
                     mesh_sources(model, panels), model.ground_z_m, model.floating,
                     read_bodies(model.dielectrics, model.length_unit))
-    return conv, warnings
+    return dataclasses.replace(conv, warnings=list(warnings))
