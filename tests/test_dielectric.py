@@ -80,11 +80,11 @@ def test_inward_normals_and_open_bodies_are_refused():
         solve_with_dielectrics(cond, [body("bad", -1.0, (p, t))])
 
 
-def test_sheet_conductor_on_an_interface_is_refused():
-    # a zero-thickness plate on a box face has different media on its faces
+def test_sheet_on_a_body_face_meshed_unlike_it_is_refused():
+    # a zero-thickness plate on a box face whose panels differ from the plate's
     plate = shapes.rectangle(0.5, 0.5, 4, 4, center=(0.0, 0.0, 0.5))
     cond = make_panels(("pad", plate))
-    with pytest.raises(ModelError, match="two faces"):
+    with pytest.raises(MeshError, match="meshed alike near"):
         solve_with_dielectrics(cond, [body("board", 4.0, shapes.box(2.0, 2.0, 1.0, 4))])
 
 

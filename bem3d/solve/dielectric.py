@@ -122,27 +122,53 @@ def _off_the_plane(inter, lam, bodies, ground_z, size):
     return Panels(inter.vertices[keep], inter.owner[keep], inter.names), lam[keep]
 
 
-def _uncovered(inter, lam, conductors, size):
-    """Interface panels not covered by a conductor: a dielectric face under a conductor's
-    surface (a body touching a conductor) carries no separate charge of its own."""
+def _inside_triangles(points, triangles, normals, tol):
+    """For each point (m, 3) and its candidate triangle (m, 3, 3) with unit normal (m, 3):
+    does the point lie in the triangle's plane and inside it (edges included)?"""
+    on_plane = np.abs(np.einsum("ij,ij->i", points - triangles[:, 0], normals)) <= tol
+    edges = np.cross(triangles[:, [1, 2, 0]] - triangles, points[:, None, :] - triangles)
+    inside = np.all(np.einsum("ikj,ij->ik", edges, normals) >= -tol * np.linalg.norm(
+        triangles[:, 1] - triangles[:, 0], axis=1)[:, None], axis=1)
+    return on_plane & inside
+
+
+def _coincident(a, b, size, what):
+    """Which panels of a coincide with a panel of b (the same three corners); MeshError
+    where a panel of a and one of b overlap in a common plane without coinciding (a shared
+    face must be meshed identically on both sides)."""
     from scipy.spatial import cKDTree
 
-    tree = cKDTree(conductors.centroids)
-    near = tree.query_ball_point(inter.centroids, r=float(conductors.radii.max()) * 1.01)
-    covered = np.zeros(len(inter), bool)
     tol = 1e-6 * size
-    for i, candidates in enumerate(near):
-        x = inter.centroids[i]
-        for k in candidates:
-            tri = conductors.vertices[k]
-            n = conductors.normals[k]
-            if abs(np.dot(x - tri[0], n)) > tol:
-                continue
-            # inside the triangle: all three edge cross products point along n
-            edges = np.cross(tri[[1, 2, 0]] - tri, x - tri)
-            if np.all(edges @ n >= -tol * np.linalg.norm(tri[1] - tri[0])):
-                covered[i] = True
-                break
+    key = 1e-9 * size
+    same = np.zeros(len(a), bool)
+    if not len(a) or not len(b):
+        return same
+    pairs = cKDTree(a.centroids).query_ball_tree(cKDTree(b.centroids),
+                                                 r=float(a.radii.max() + b.radii.max()))
+    i = np.repeat(np.arange(len(a)), [len(c) for c in pairs])
+    k = np.fromiter((x for c in pairs for x in c), int, count=len(i))
+    if not len(i):
+        return same
+    corners_a = np.round(np.sort(a.vertices[i], axis=1).reshape(-1, 9) / key)
+    corners_b = np.round(np.sort(b.vertices[k], axis=1).reshape(-1, 9) / key)
+    identical = np.all(corners_a == corners_b, axis=1)
+    same[i[identical]] = True
+    overlap = (_inside_triangles(a.centroids[i], b.vertices[k], b.normals[k], tol)
+               | _inside_triangles(b.centroids[k], a.vertices[i], a.normals[i], tol))
+    bad = overlap & ~identical
+    if bad.any():
+        j = np.flatnonzero(bad)[0]
+        where = ", ".join(f"{x:.4g}" for x in a.centroids[i[j]])
+        raise MeshError(f"{what}: faces overlap without being meshed alike near ({where}) m; "
+                        "a shared face needs the same panels on both sides")
+    return same
+
+
+def _uncovered(inter, lam, conductors, size):
+    """Interface panels not covered by a conductor: a dielectric face under a conductor's
+    surface (a body touching a conductor, a sheet on a body face) carries no charge of its
+    own; the conductor's panel takes it."""
+    covered = _coincident(inter, conductors, size, "a dielectric body and a conductor")
     keep = ~covered
     return Panels(inter.vertices[keep], inter.owner[keep], inter.names), lam[keep]
 
@@ -157,13 +183,17 @@ def system_bytes(n_panels):
 @dataclass(frozen=True)
 class DielectricSystem:
     """The geometry of the coupled system, known before any assembly: conductor panels,
-    interface panels with their lambda, the medium outside each conductor panel, the bodies,
-    the background and the grounded plane height (m) or None."""
+    interface panels with their lambda, the relative permittivity on the normal side of each
+    conductor panel (eps_out) and on its back (eps_back), which conductor panels carry charge
+    on both faces (two_faced), the bodies, the background and the grounded plane height (m)
+    or None."""
 
     conductors: Panels
     interfaces: Panels
     lam: np.ndarray
     eps_out: np.ndarray
+    eps_back: np.ndarray
+    two_faced: np.ndarray
     bodies: tuple
     background: float
     ground_z: float | None
@@ -190,14 +220,25 @@ def plan_dielectrics(conductors, bodies, background=1.0, ground_z=None):
     delta = 1e-6 * size
     eps_out = medium_at(conductors.centroids + delta * conductors.normals, bodies, background)
     eps_back = medium_at(conductors.centroids - delta * conductors.normals, bodies, background)
-    sheet = ~closed_conductors(conductors)[conductors.owner]
-    mixed = sheet & (eps_out != eps_back)
-    if mixed.any():
-        name = conductors.names[conductors.owner[np.flatnonzero(mixed)[0]]]
-        raise ModelError(f"conductor {name}: a zero-thickness sheet with different media on "
-                         "its two faces is not supported; give it a thickness")
-    return DielectricSystem(conductors, inter, lam, eps_out, tuple(bodies), float(background),
-                            ground_z)
+    two_faced = ~_solid(conductors, inter)[conductors.owner] & (eps_out != eps_back)
+    return DielectricSystem(conductors, inter, lam, eps_out, eps_back, two_faced, tuple(bodies),
+                            float(background), ground_z)
+
+
+def _solid(conductors, inter):
+    """Per conductor: a closed surface with nothing inside it (no other conductor, no
+    interface). Its inside is field-free, so all its charge sits on the outer face. Open
+    sheets and closed shells around something carry charge on both faces."""
+    closed = closed_conductors(conductors)
+    others = np.concatenate([conductors.centroids, inter.centroids])
+    owner = np.concatenate([conductors.owner, np.full(len(inter), -1)])
+    solid = closed.copy()
+    for k in np.flatnonzero(closed):
+        on = conductors.owner == k
+        shell = Panels(conductors.vertices[on], np.zeros(int(on.sum()), int), ("shell",))
+        test = owner != k
+        solid[k] = not np.any(winding_numbers(shell, others[test]) > 0.5)
+    return solid
 
 
 def solve_with_dielectrics(conductors, bodies, background=1.0, volts=None, rules=PairRules(),
@@ -223,14 +264,19 @@ def normal_field_arguments(inter, sources):
 
 
 def _interface_rows(out, system, sources):
-    """Fill out (ni, n): over each interface panel's test points, the weighted sum of
-    n_k . (field of a unit charge density on each source panel), less that of the source's
-    mirror image when there is a grounded plane."""
-    assemble_normal_field(out, *normal_field_arguments(system.interfaces, sources))
-    if system.ground_z is not None:
+    """Fill out (ni, n) with the interface rows' normal field (see _normal_field_rows)."""
+    _normal_field_rows(out, system.interfaces, sources, system.ground_z)
+
+
+def _normal_field_rows(out, tests, sources, ground_z):
+    """Fill out (m, n): over each test panel's points, the weighted sum of n_k . (field of a
+    unit charge density on each source panel), less that of the source's mirror image when
+    there is a grounded plane z = ground_z."""
+    assemble_normal_field(out, *normal_field_arguments(tests, sources))
+    if ground_z is not None:
         image = np.empty_like(out)          # within system_bytes: no LU copy exists yet
-        assemble_normal_field(image, *normal_field_arguments(
-            system.interfaces, sources.mirrored(system.ground_z)))
+        assemble_normal_field(image, *normal_field_arguments(tests,
+                                                             sources.mirrored(ground_z)))
         out -= image
 
 
@@ -250,17 +296,50 @@ def system_rhs(system):
     return rhs
 
 
+def free_charge(system, both, total):
+    """Free charge density (n_conductor_panels, k) C/m^2 of the total charge densities `total`
+    (conductors then interfaces, radiating in vacuum). On a face with relative permittivity
+    eps, D.n = eps0 eps E.n, and E.n = E_pv.n +- sigma/(2 eps0) on the faces a (normal side)
+    and b; their difference is the free charge eps0 (eps_a - eps_b) E_pv.n + (eps_a + eps_b)
+    sigma / 2. A solid conductor's inside is field-free: its free charge is eps_a sigma."""
+    conductors = system.conductors
+    sigma = total[:len(conductors)]
+    free = system.eps_out[:, None] * sigma
+    faced = np.flatnonzero(system.two_faced)
+    if faced.size:
+        a, b = system.eps_out[faced, None], system.eps_back[faced, None]
+        tests = Panels(conductors.vertices[faced], conductors.owner[faced], conductors.names)
+        # eps0 E_pv.n = (1/4 pi) sum_l <n . g_l> sigma_l (the same rows as the interfaces')
+        normal = _normal_field_product(tests, both, system.ground_z, total) / (4 * math.pi)
+        free[faced] = 0.5 * (a + b) * sigma[faced] + (a - b) * normal
+    return free
+
+
+def _normal_field_product(tests, sources, ground_z, total, rows=512):
+    """sum_l <n_i . g_l>_i total_l for every test panel i (the interface rows' normal field,
+    images subtracted), assembled a block of rows at a time so memory stays bounded."""
+    out = np.empty((len(tests), total.shape[1]))
+    for start in range(0, len(tests), rows):
+        block = slice(start, min(start + rows, len(tests)))
+        part = Panels(tests.vertices[block], tests.owner[block], tests.names)
+        field = np.empty((len(part), len(sources)))
+        _normal_field_rows(field, part, sources, ground_z)
+        out[block] = field @ total
+    return out
+
+
 def system_result(system, both, total, volts, solver):
     """The CapacitanceResult of the total charge densities `total` (n, conductors);
     solver: the record of how they were found (backend, solver, residual, ...)."""
     conductors = system.conductors
-    free = system.eps_out[:, None] * total[:len(conductors)]
+    free = free_charge(system, both, total)
     maxwell = conductors.excitation().T @ free
     return CapacitanceResult(
         names=conductors.names, maxwell=0.5 * (maxwell + maxwell.T), sigma=free,
         potentials=potential_vector(conductors.names, dict(volts or {})),
         n_panels=len(conductors),
         solver={**solver, "interface_panels": len(system.interfaces),
+                "two_faced_panels": int(system.two_faced.sum()),
                 "relative_permittivity": system.background,
                 "ground_plane_z_m": system.ground_z},
         asymmetry=float(np.max(np.abs(maxwell - maxwell.T)) / np.max(np.abs(np.diag(maxwell)))),
