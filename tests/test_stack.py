@@ -118,3 +118,15 @@ def test_a_body_reaching_below_the_plane_is_refused():
     pad = box_panels(0.6, 0.6, 0.1, 4, (0.0, 0.0, 0.7), "pad")
     with pytest.raises(ModelError, match="board cross or lie below the plane"):
         solve_with_dielectrics(pad, [board], ground_z=0.0)
+
+
+def test_stacked_bodies_must_share_faces_meshed_alike():
+    # a cover standing on a board: the board's top face and the cover's bottom face overlap;
+    # meshed alike they are one interface, meshed differently the model is refused
+    board = DielectricBody("board", 4.4, box_panels(2.0, 2.0, 0.5, 4, (0, 0, 0.25), "board"))
+    alike = DielectricBody("cover", 3.0, box_panels(2.0, 2.0, 0.5, 4, (0, 0, 0.75), "cover"))
+    unlike = DielectricBody("cover", 3.0, box_panels(2.0, 2.0, 0.5, 5, (0, 0, 0.75), "cover"))
+    pad = box_panels(0.6, 0.6, 0.1, 4, (0.2, 0.0, 1.3), "pad")
+    assert solve_with_dielectrics(pad, [board, alike], ground_z=0.0).maxwell[0, 0] > 0
+    with pytest.raises(MeshError, match="meshed alike near"):
+        solve_with_dielectrics(pad, [board, unlike], ground_z=0.0)

@@ -81,6 +81,7 @@ def interfaces(bodies, background, size):
     A face shared by two touching bodies appears in both meshes with opposite normals: it is
     kept once, with the two bodies' permittivities on its sides."""
     all_panels = all_body_panels(bodies)
+    _coincident(all_panels, all_panels, size, "dielectric bodies")     # refuses mismatched faces
     verts, owner = all_panels.vertices, all_panels.owner
     eps_in = np.array([bodies[k].eps_r for k in owner], float)
     # duplicates: the same three corners (in any order) in two bodies
