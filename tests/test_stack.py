@@ -130,3 +130,56 @@ def test_stacked_bodies_must_share_faces_meshed_alike():
     assert solve_with_dielectrics(pad, [board, alike], ground_z=0.0).maxwell[0, 0] > 0
     with pytest.raises(MeshError, match="meshed alike near"):
         solve_with_dielectrics(pad, [board, unlike], ground_z=0.0)
+
+
+def hammerstad_jensen_capacitance(w, h, eps_r):
+    """Quasi-static capacitance per unit length (F/m) of a zero-thickness microstrip of width w
+    on a substrate of height h over ground: C = eps_eff / (c Z01), with Z01 the impedance of
+    the strip in air and eps_eff the effective permittivity (Hammerstad & Jensen 1980, the
+    formulas as published there; written here from memory)."""
+    u = w / h
+    eta0 = 376.730313412                                # free-space impedance, ohm (CODATA)
+    f = 6.0 + (2 * math.pi - 6.0) * math.exp(-(30.666 / u) ** 0.7528)
+    z01 = eta0 / (2 * math.pi) * math.log(f / u + math.sqrt(1.0 + (2.0 / u) ** 2))
+    a = (1.0 + math.log((u**4 + (u / 52.0) ** 2) / (u**4 + 0.432)) / 49.0
+         + math.log(1.0 + (u / 18.1) ** 3) / 18.7)
+    b = 0.564 * ((eps_r - 0.9) / (eps_r + 3.0)) ** 0.053
+    eps_eff = (eps_r + 1) / 2 + (eps_r - 1) / 2 * (1.0 + 10.0 / u) ** (-a * b)
+    return eps_eff / (299792458.0 * z01)
+
+
+def graded_nodes(*stops, per_unit=4):
+    """Increasing nodes through the given stops, each interval divided into cells that shrink
+    towards both of its ends (where strip and board edges concentrate the charge)."""
+    nodes = [stops[0]]
+    for lo, hi in zip(stops[:-1], stops[1:]):
+        n = max(2, int(round(per_unit * (hi - lo))))
+        nodes.extend(lo + (hi - lo) * shapes.graded_spacing(n, 0.5)[1:])
+    return np.array(nodes)
+
+
+def microstrip(length, w=2.0, h=1.0, eps_r=4.4, margin=5.0):
+    """A sheet strip (width w, length) on a board of height h standing on the grounded plane
+    z = 0, the board's top face meshed through the strip's edges: (strip, board)."""
+    half = w / 2 + margin
+    xs = graded_nodes(-half, -w / 2, w / 2, half, per_unit=3)
+    ys = graded_nodes(-length / 2 - margin, -length / 2, length / 2, length / 2 + margin,
+                      per_unit=2)
+    p, t = shapes.lattice_box(xs, ys, [0.0, h / 2, h])
+    board = Panels.from_arrays(p, t, np.zeros(len(t), int), ("board",))
+    c = board.centroids
+    on_strip = ((np.abs(c[:, 2] - h) < 1e-12) & (np.abs(c[:, 0]) < w / 2)
+                & (np.abs(c[:, 1]) < length / 2))
+    strip = Panels(board.vertices[on_strip], np.zeros(int(on_strip.sum()), int), ("strip",))
+    return strip, DielectricBody("board", eps_r, board)
+
+
+def test_microstrip_per_unit_length_against_hammerstad_jensen():
+    # two strip lengths, the difference of their capacitances to ground over the difference
+    # of lengths: the ends cancel, leaving the per-unit-length value of the infinite line
+    c = []
+    for length in (6.0, 10.0):
+        strip, board = microstrip(length)
+        c.append(solve_with_dielectrics(strip, [board], ground_z=0.0).maxwell[0, 0])
+    per_length = (c[1] - c[0]) / 4.0
+    assert per_length == pytest.approx(hammerstad_jensen_capacitance(2.0, 1.0, 4.4), rel=0.03)

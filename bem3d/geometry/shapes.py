@@ -80,6 +80,19 @@ def _box_faces(lx, ly, lz, m, grading, center, skip):
     counts = _divisions(size, m)
     nodes = [np.asarray(center, float)[a] + size[a] * (graded_spacing(counts[a], grading) - 0.5)
              for a in range(3)]
+    return _lattice_faces(nodes, skip)
+
+
+def lattice_box(xs, ys, zs):
+    """Closed box whose faces are the tensor grids of the increasing node coordinates xs, ys,
+    zs, outward normals: a board whose face lines up with the pads drawn on it."""
+    return _lattice_faces([np.asarray(n, float) for n in (xs, ys, zs)], skip=())
+
+
+def _lattice_faces(nodes, skip):
+    """The faces of the box spanned by nodes (three increasing arrays), but those in skip as
+    (axis, side); faces meeting at an edge share its points."""
+    counts = [len(n) - 1 for n in nodes]
     points, lookup, tris = [], {}, []
 
     def point_id(ijk):
