@@ -7,19 +7,18 @@ import time
 from dataclasses import dataclass
 from pathlib import Path
 
-
 from bem3d.base.constants import LENGTH_UNITS
 from bem3d.base.errors import ModelError, option
 from bem3d.base.files import check_output_folder
 from bem3d.base.resources import available_memory, check_panel_count, peak_memory
+from bem3d.export.convergence import write_convergence
 from bem3d.export.outputs import output_names
 from bem3d.geometry.panels import Panels
+from bem3d.geometry.refine import CREASE_DEGREES
 from bem3d.mesh_io.bodies import read_bodies
 from bem3d.mesh_io.read import mesh_summary, read_conductors
 from bem3d.model import Model, build_model
 from bem3d.operators.hmatrix import Compression
-from bem3d.export.convergence import write_convergence
-from bem3d.geometry.refine import CREASE_DEGREES
 from bem3d.post.convergence import converge_model
 from bem3d.post.field_map import compute_field_map, field_request
 from bem3d.post.sweep.run import SweepRequest, run_sweep

@@ -10,8 +10,8 @@ tools/make_demo.py writes meshes/sensor_head.msh from it byte for byte.
 import meshio
 import numpy as np
 
-from bem3d.geometry import shapes
 from bem3d.base.files import atomic_path
+from bem3d.geometry import shapes
 
 LENGTH_UNIT = "mm"
 #: The drive pad is excited; sense pads, guard and lid are held at 0 V.

@@ -5,8 +5,8 @@ import signal
 import numpy as np
 
 from bem3d.geometry.panels import Panels
-from bem3d.solve.conductors import solve_panels
 from bem3d.operators.quadrature import map_points, triangle_rule
+from bem3d.solve.conductors import solve_panels
 
 
 def make_panels(*parts):

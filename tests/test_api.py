@@ -12,11 +12,11 @@ from html.parser import HTMLParser
 import meshio
 import numpy as np
 import pytest
+import reference_values as ref
+from conftest import run_cli
 
 import bem3d
-import reference_values as ref
 from bem3d.geometry import shapes
-from conftest import run_cli
 
 RADIUS_MM = 1.0
 CENTRES_MM = 3.0          # centre distance, in radii

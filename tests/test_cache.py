@@ -7,11 +7,11 @@ the run that filled the cache.
 
 import numpy as np
 import pytest
+from conftest import make_panels
 
 from bem3d.geometry import shapes
 from bem3d.operators.cache import OperatorCache, cache_key, default_folder
 from bem3d.solve.conductors import solve_panels
-from conftest import make_panels
 
 
 @pytest.fixture(scope="module")

@@ -8,10 +8,10 @@ with order 2. Tolerances are the accuracy targets of the project's core issue.
 
 import numpy as np
 import pytest
-
 import reference_values as ref
-from bem3d.geometry import shapes
 from conftest import maxwell
+
+from bem3d.geometry import shapes
 
 EPS0 = ref.EPS0
 

@@ -9,10 +9,10 @@ import meshio
 import numpy as np
 import pytest
 import reference_values as ref
-
-from bem3d.geometry import shapes
-from bem3d.base.constants import EPS0
 from conftest import run_cli as run
+
+from bem3d.base.constants import EPS0
+from bem3d.geometry import shapes
 
 pv = pytest.importorskip("pyvista")
 

@@ -18,8 +18,8 @@ import meshio
 import numpy as np
 import pytest
 
-from bem3d.geometry import shapes
 from bem3d._cli.main import main
+from bem3d.geometry import shapes
 
 #: Entries of result.json that measure the run rather than the result.
 RUN_FIGURES = {("timings_s",), ("solver", "peak_memory_MiB")}

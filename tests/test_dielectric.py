@@ -10,15 +10,15 @@ import math
 
 import numpy as np
 import pytest
-
 import reference_values as ref
+from conftest import make_panels
+
+from bem3d.base.errors import MeshError, ModelError
 from bem3d.geometry import shapes
 from bem3d.geometry.bodies import DielectricBody
-from bem3d.solve.dielectric import solve_with_dielectrics
-from bem3d.base.errors import MeshError, ModelError
 from bem3d.geometry.panels import Panels
 from bem3d.solve.conductors import solve_panels
-from conftest import make_panels
+from bem3d.solve.dielectric import solve_with_dielectrics
 
 EPS0 = ref.EPS0
 
@@ -119,10 +119,10 @@ def test_field_in_and_around_a_dielectric_shell(shelled_sphere):
 
 def test_energy_balance_with_a_dielectric_shell(shelled_sphere):
     # 1/2 int E.D dV over all space equals 1/2 V^T C V (energy identity)
-    from bem3d.solve.dielectric import medium_at
-    from bem3d.post.grid import Grid
-    from bem3d.post.energy import energy_balance
     from bem3d.operators.points import evaluate
+    from bem3d.post.energy import energy_balance
+    from bem3d.post.grid import Grid
+    from bem3d.solve.dielectric import medium_at
 
     cond, shell, result = shelled_sphere
     src = result.sources

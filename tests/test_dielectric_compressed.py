@@ -12,21 +12,21 @@ import math
 
 import numpy as np
 import pytest
-
 import reference_values as ref
-from bem3d.solve import backend, conductors
+from conftest import assert_admissible, make_panels, normal_field_block
+
+from bem3d.base.errors import ResourceError
 from bem3d.geometry import shapes
 from bem3d.geometry.bodies import DielectricBody
-from bem3d.solve.dielectric import _interface_rows, plan_dielectrics, union_panels
-from bem3d.base.errors import ResourceError
-from bem3d.solve.dielectric_compressed import DielectricPlan
 from bem3d.geometry.panels import Panels
+from bem3d.kernels.blocks import MID_RULE, NEAR_RULE, ONE_POINT, PAIR_RULE
 from bem3d.operators.cluster import ClusterTree, block_partition
 from bem3d.operators.hfield import FieldOperator
-from bem3d.kernels.blocks import MID_RULE, NEAR_RULE, ONE_POINT, PAIR_RULE
 from bem3d.operators.hmatrix import Compression, block_rules
+from bem3d.solve import backend, conductors
 from bem3d.solve.conductors import solve_panels
-from conftest import assert_admissible, make_panels, normal_field_block
+from bem3d.solve.dielectric import _interface_rows, plan_dielectrics, union_panels
+from bem3d.solve.dielectric_compressed import DielectricPlan
 
 SMALL_LEAVES = Compression(leaf_size=16)
 

@@ -17,18 +17,18 @@ import math
 import meshio
 import numpy as np
 import pytest
-
 import reference_values as ref
-from bem3d.geometry import shapes
+
 from bem3d._cli.main import main
-from bem3d.geometry.bodies import DielectricBody
-from bem3d.solve.dielectric import medium_at, solve_with_dielectrics
 from bem3d.base.errors import ModelError
-from bem3d.post.grid import Grid
-from bem3d.post.energy import energy_balance
-from bem3d.operators.points import evaluate
+from bem3d.geometry import shapes
+from bem3d.geometry.bodies import DielectricBody
 from bem3d.geometry.panels import Panels
+from bem3d.operators.points import evaluate
+from bem3d.post.energy import energy_balance
+from bem3d.post.grid import Grid
 from bem3d.solve.conductors import solve_panels
+from bem3d.solve.dielectric import medium_at, solve_with_dielectrics
 
 EPS0 = ref.EPS0
 A, B, EPS_R = 1.0, 2.0, 4.0

@@ -12,17 +12,17 @@ import math
 
 import numpy as np
 import pytest
+import reference_values as ref
+from conftest import make_panels
 from scipy import integrate
 
-import reference_values as ref
 from bem3d.geometry import shapes
-from bem3d.post.grid import Grid
-from bem3d.post.fields import conductor_forces, surface_fields, virtual_work_force
-from bem3d.post.energy import energy_balance
-from bem3d.operators.points import evaluate
 from bem3d.kernels.pairs import triangle_integrals
+from bem3d.operators.points import evaluate
+from bem3d.post.energy import energy_balance
+from bem3d.post.fields import conductor_forces, surface_fields, virtual_work_force
+from bem3d.post.grid import Grid
 from bem3d.solve.conductors import solve_panels
-from conftest import make_panels
 
 EPS0 = ref.EPS0
 TRI = np.array([[0.0, 0.0, 0.0], [1.0, 0.0, 0.0], [0.3, 0.8, 0.0]])

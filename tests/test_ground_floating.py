@@ -11,15 +11,15 @@ import math
 
 import numpy as np
 import pytest
-
 import reference_values as ref
-from bem3d.geometry import shapes
-from bem3d.base.errors import ModelError
-from bem3d.post.grid import Grid
-from bem3d.post.energy import energy_balance
-from bem3d.operators.points import evaluate
-from bem3d.solve.conductors import solve_panels
 from conftest import make_panels
+
+from bem3d.base.errors import ModelError
+from bem3d.geometry import shapes
+from bem3d.operators.points import evaluate
+from bem3d.post.energy import energy_balance
+from bem3d.post.grid import Grid
+from bem3d.solve.conductors import solve_panels
 
 EPS0 = ref.EPS0
 

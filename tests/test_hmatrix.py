@@ -12,18 +12,23 @@ the admissibility condition min(diam) <= eta dist (Hackbusch 1999, Computing 62,
 
 import numpy as np
 import pytest
+from conftest import assert_admissible, covariances, make_panels, moment_rule_block, pair_rule_block
 
 from bem3d.geometry import shapes
+from bem3d.kernels.blocks import MID_RULE, NEAR_RULE, ONE_POINT, PAIR_RULE
 from bem3d.kernels.pairs import assemble_dense
-from bem3d.operators.rules import PairRules, kernel_arguments
 from bem3d.operators.cluster import ClusterTree, block_partition
 from bem3d.operators.dense import DenseOperator
-from bem3d.kernels.blocks import MID_RULE, NEAR_RULE, ONE_POINT, PAIR_RULE
-from bem3d.operators.hmatrix import (Compression, HMatrixOperator, HMatrixPlan, _compress, block_rules)
-from bem3d.solve.conductors import solve_panels
+from bem3d.operators.hmatrix import (
+    Compression,
+    HMatrixOperator,
+    HMatrixPlan,
+    _compress,
+    block_rules,
+)
 from bem3d.operators.quadrature import map_points, triangle_rule
-from conftest import (assert_admissible, covariances, make_panels, moment_rule_block,
-                      pair_rule_block)
+from bem3d.operators.rules import PairRules, kernel_arguments
+from bem3d.solve.conductors import solve_panels
 
 #: Degree of the triangle rule each point block rule puts on both panels (operators.PairRules).
 RULE_DEGREE = {NEAR_RULE: PairRules().near_degree, MID_RULE: PairRules().mid_degree}

@@ -10,13 +10,13 @@ import math
 
 import numpy as np
 import pytest
+from conftest import covariances, pair_rule_block
 from scipy import integrate
 
 from bem3d.geometry.panels import Panels
 from bem3d.kernels.pairs import moment_pair, panel_pair_integral, triangle_potential
-from bem3d.operators.rules import PairRules, kernel_arguments
 from bem3d.operators.quadrature import map_points, triangle_rule
-from conftest import covariances, pair_rule_block
+from bem3d.operators.rules import PairRules, kernel_arguments
 
 TRI = np.array([[0.0, 0.0, 0.0], [1.0, 0.0, 0.0], [0.3, 0.8, 0.0]])
 NORMAL = np.array([0.0, 0.0, 1.0])

@@ -14,13 +14,14 @@ from pathlib import Path
 
 import meshio
 import pytest
+from conftest import default_sigint
+from conftest import run_cli as run
 
 from bem3d.base import files
-from bem3d.solve import estimate
-from bem3d.geometry import shapes
 from bem3d.base.errors import ResourceError
+from bem3d.geometry import shapes
 from bem3d.mesh_io.read import read_conductors
-from conftest import default_sigint, run_cli as run
+from bem3d.solve import estimate
 
 pytestmark = pytest.mark.filterwarnings("ignore::DeprecationWarning")
 

@@ -435,8 +435,9 @@ def test_an_open_sheet_keeps_the_orientation_most_panels_had(tmp_path):
 def test_a_surface_that_cannot_be_oriented_is_left_as_read(tmp_path):
     # A Moebius strip of 10 quads (20 panels) has one side only (topology).
     u = np.linspace(0, 2 * np.pi, 11)[:-1]
-    ring = lambda w: np.column_stack([(2 + w * np.cos(u / 2)) * np.cos(u),
-                                      (2 + w * np.cos(u / 2)) * np.sin(u), w * np.sin(u / 2)])
+    def ring(w):
+        return np.column_stack([(2 + w * np.cos(u / 2)) * np.cos(u),
+                                (2 + w * np.cos(u / 2)) * np.sin(u), w * np.sin(u / 2)])
     points = np.vstack([ring(-0.5), ring(0.5)])
     quads = [[k, (k + 1) % 10, 10 + (k + 1) % 10, 10 + k] for k in range(9)] + [[9, 10, 0, 19]]
     path = write(tmp_path / "strip.vtk", points, [("quad", np.array(quads))])
@@ -558,8 +559,8 @@ def test_check_mesh_shows_every_accuracy_warning(tmp_path, capsys):
     # Two strip-meshed plates 0.01 m apart (panels 1 m long, so the gap is far below their
     # size) in one file, grouped by their tags: check-mesh lists both kinds of concern and the
     # shape figures, and exits 0.
-    from bem3d.geometry import shapes
     from bem3d._cli.main import main
+    from bem3d.geometry import shapes
 
     points, tris = shapes.rectangle(1.0, 1.0, 1, 50)
     points = np.asarray(points)

@@ -12,11 +12,11 @@ import os
 
 import meshio
 import pytest
+from conftest import run_cli as run
 
-from bem3d.geometry import shapes
 from bem3d.base.errors import Bem3dError
 from bem3d.base.files import STAGE_PREFIX
-from conftest import run_cli as run
+from bem3d.geometry import shapes
 
 OUTPUTS = ["bem3d_capacitance.cir", "capacitance.csv", "result.json", "surface.vtp"]
 

@@ -9,11 +9,11 @@ refinement (it is a variational lower bound, e.g. Sauter & Schwab 2011, Boundary
 
 import numpy as np
 import pytest
+from conftest import make_panels, maxwell
 from scipy.spatial.transform import Rotation
 
 from bem3d.geometry import shapes
 from bem3d.solve.conductors import solve_panels
-from conftest import make_panels, maxwell
 
 
 @pytest.fixture(scope="module")

@@ -11,16 +11,16 @@ Tichý 2002, Electron. Trans. Numer. Anal. 13).
 import numpy as np
 import pytest
 import scipy.linalg
+from conftest import make_panels
 
-from bem3d.geometry import shapes
 from bem3d.base.errors import ModelError, ResourceError
+from bem3d.geometry import shapes
 from bem3d.geometry.panels import Panels
 from bem3d.operators.cluster import ClusterTree
 from bem3d.operators.dense import DenseOperator
 from bem3d.solve.conductors import choose_backend, solve_panels
 from bem3d.solve.krylov import ESTIMATE_DELAY, solve_cg
 from bem3d.solve.schwarz import SchwarzPreconditioner
-from conftest import make_panels
 
 
 @pytest.fixture(scope="module")

@@ -18,8 +18,8 @@ import math
 
 import numpy as np
 import pytest
-
 import reference_values as ref
+
 from bem3d.base.errors import MeshError, ModelError
 from bem3d.geometry import shapes
 from bem3d.geometry.bodies import DielectricBody

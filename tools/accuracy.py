@@ -14,6 +14,7 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent / "tests"))
 import reference_values as ref  # noqa: E402
+
 from bem3d.geometry import shapes
 from bem3d.geometry.panels import Panels
 from bem3d.solve.conductors import solve_panels

@@ -22,8 +22,8 @@ from pathlib import Path
 
 import meshio
 
-from bem3d.geometry import shapes
 from bem3d.base.constants import EPS0
+from bem3d.geometry import shapes
 
 EXACT = 4 * math.pi * EPS0
 

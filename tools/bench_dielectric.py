@@ -22,12 +22,12 @@ import time
 
 import numpy as np
 
-from bem3d.geometry import shapes
 from bem3d.base.constants import EPS0
+from bem3d.geometry import shapes
 from bem3d.geometry.bodies import DielectricBody
-from bem3d.solve.dielectric import plan_dielectrics, solve_with_dielectrics
 from bem3d.geometry.panels import Panels
 from bem3d.solve.conductors import solve_panels
+from bem3d.solve.dielectric import plan_dielectrics, solve_with_dielectrics
 
 
 def sphere(radius, m, name):

@@ -15,10 +15,10 @@ import time
 
 import numpy as np
 
-from bem3d.geometry import shapes
 from bem3d.base.constants import EPS0
-from bem3d.operators.points import evaluate
+from bem3d.geometry import shapes
 from bem3d.geometry.panels import Panels
+from bem3d.operators.points import evaluate
 from bem3d.solve.conductors import solve_panels
 
 

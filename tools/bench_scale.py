@@ -36,9 +36,10 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 from bench import BEMPP_SCRIPT  # noqa: E402
+
 from bem3d import demo
-from bem3d.geometry import shapes
 from bem3d.base.constants import EPS0
+from bem3d.geometry import shapes
 
 SPHERE_EXACT = 4 * math.pi * EPS0          # unit sphere, F
 

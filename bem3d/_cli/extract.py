@@ -3,8 +3,13 @@
 import sys
 
 from bem3d import api
-from bem3d._cli.options import (add_model_options, add_run_guards, add_solver_options,
-                                model_from_args, solver_settings)
+from bem3d._cli.options import (
+    add_model_options,
+    add_run_guards,
+    add_solver_options,
+    model_from_args,
+    solver_settings,
+)
 from bem3d.export.records import CAUTION
 
 

@@ -5,8 +5,13 @@ from pathlib import Path
 
 from bem3d import api
 from bem3d._cli.extract import print_warnings
-from bem3d._cli.options import (add_model_options, add_run_guards, add_solver_options,
-                                model_from_args, solver_settings)
+from bem3d._cli.options import (
+    add_model_options,
+    add_run_guards,
+    add_solver_options,
+    model_from_args,
+    solver_settings,
+)
 from bem3d.base.constants import LENGTH_UNITS
 from bem3d.base.units import format_quantity
 from bem3d.post.field_map import AIR_BREAKDOWN_V_PER_M, FIELD_CAUTION

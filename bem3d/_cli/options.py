@@ -2,7 +2,6 @@
 
 from pathlib import Path
 
-
 from bem3d.model import build_model, parse_dielectrics, parse_volts
 
 

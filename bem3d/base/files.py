@@ -17,7 +17,6 @@ from pathlib import Path
 
 from bem3d.base.errors import ModelError, option
 
-
 _UMASK = os.umask(0o022)
 
 

@@ -1,12 +1,10 @@
 """The files every solve writes, together."""
 
-from bem3d.export.records import result_record, spice_node, write_csv, write_json, write_spice
-from bem3d.export.vtk import write_surface
-from bem3d.export.checks import require_finite
-
 from pathlib import Path
 
-
+from bem3d.export.checks import require_finite
+from bem3d.export.records import result_record, spice_node, write_csv, write_json, write_spice
+from bem3d.export.vtk import write_surface
 
 
 def output_names(model):

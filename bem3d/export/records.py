@@ -6,9 +6,7 @@ import re
 import numpy as np
 
 from bem3d.base.files import write_text
-
 from bem3d.base.version import __version__
-
 
 CAUTION = ("Engineering estimate from a surface discretisation. Stored field energy in "
            "high-voltage structures can injure; clearances and safety follow the applicable "

@@ -6,7 +6,6 @@ import numpy as np
 from bem3d.base.files import atomic_path
 
 
-
 def surface_polydata(panels, cell_arrays):
     """pyvista PolyData of the panels (metres) with the given cell arrays."""
     import pyvista as pv

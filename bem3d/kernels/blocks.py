@@ -14,7 +14,14 @@ import numpy as np
 from numba import njit, prange
 from numba.extending import overload
 
-from bem3d.kernels.pairs import (_pair, _point_pair_sum, moment_pair, normal_field_entry, panel_pair_integral, points_normal_field)
+from bem3d.kernels.pairs import (
+    _pair,
+    _point_pair_sum,
+    moment_pair,
+    normal_field_entry,
+    panel_pair_integral,
+    points_normal_field,
+)
 
 #: Length of the single-layer entry tuple (hmatrix.entry_arguments); the normal-field tuple
 #: (hfield.field_arguments) is shorter, which is how _entries tells them apart.

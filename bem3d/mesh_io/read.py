@@ -44,8 +44,8 @@ from scipy.spatial import cKDTree
 
 from bem3d.base.constants import LENGTH_UNITS
 from bem3d.base.errors import MeshError, ModelError
-from bem3d.geometry.panels import Panels
 from bem3d.base.resources import check_panel_count, require_memory
+from bem3d.geometry.panels import Panels
 
 #: Cell-data arrays that may assign panels to conductors, in order of preference (compared
 #: case-insensitively). ``gmsh:geometrical`` is left out on purpose: it numbers CAD surfaces, so

@@ -10,7 +10,13 @@ single-layer operator (hmatrix), the others are stored dense.
 import numpy as np
 from scipy.sparse.linalg import LinearOperator
 
-from bem3d.operators.hmatrix import (STORAGE, BlockProducts, assemble_blocks, estimate_lowrank, split_blocks)
+from bem3d.operators.hmatrix import (
+    STORAGE,
+    BlockProducts,
+    assemble_blocks,
+    estimate_lowrank,
+    split_blocks,
+)
 
 
 def field_arguments(direct, image=None):

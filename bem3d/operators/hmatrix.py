@@ -21,9 +21,9 @@ from threadpoolctl import threadpool_limits
 from bem3d.base.constants import EPS0
 from bem3d.base.errors import ResourceError
 from bem3d.geometry.panels import Panels
-from bem3d.operators.rules import PairRules, image_arrays, kernel_arguments
 from bem3d.kernels import blocks as hkernels
 from bem3d.operators.cluster import ClusterTree, block_partition
+from bem3d.operators.rules import PairRules, image_arrays, kernel_arguments
 
 #: Room (float64 numbers) for the ACA factors of one batch of admissible blocks.
 BATCH_NUMBERS = 2**24

@@ -16,7 +16,6 @@ from bem3d.mesh_io.read import closed_conductors
 from bem3d.operators.quadrature import map_points, triangle_rule
 
 
-
 @dataclass(frozen=True)
 class FieldRules:
     """Distances (in panel radii) at which point evaluation changes rule; see evaluate_points."""

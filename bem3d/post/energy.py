@@ -7,7 +7,6 @@ import numpy as np
 from bem3d.base.constants import EPS0
 
 
-
 def exterior_energy(phi, E, normals, weights, eps):
     """Energy (J) of the field outside a closed box from phi and E on its surface:
     W_out = 1/2 eps oint phi E.n dA (Green's first identity on the exterior, where

@@ -9,13 +9,13 @@ from pathlib import Path
 import numpy as np
 
 from bem3d.base.constants import EPS0
-from bem3d.solve.dielectric import medium_at
 from bem3d.base.errors import ModelError, ResourceError, option
-from bem3d.post.grid import Grid
-from bem3d.post.fields import conductor_forces, peak_fields, surface_fields
-from bem3d.post.energy import energy_balance
-from bem3d.operators.points import evaluate
 from bem3d.mesh_io.read import closed_conductors
+from bem3d.operators.points import evaluate
+from bem3d.post.energy import energy_balance
+from bem3d.post.fields import conductor_forces, peak_fields, surface_fields
+from bem3d.post.grid import Grid
+from bem3d.solve.dielectric import medium_at
 
 #: Largest number of grid points a run may ask for (each point costs ~100 bytes per excitation).
 MAX_GRID_POINTS = 20_000_000

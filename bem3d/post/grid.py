@@ -5,8 +5,6 @@ from dataclasses import dataclass
 import numpy as np
 
 
-
-
 @dataclass(frozen=True)
 class Grid:
     """A box of points: origin (3,) m, spacing (3,) m, shape (nx, ny, nz); x varies fastest."""

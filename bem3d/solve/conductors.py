@@ -13,8 +13,13 @@ from bem3d.operators.dense import DenseOperator
 from bem3d.operators.hmatrix import Compression, HMatrixOperator, HMatrixPlan
 from bem3d.operators.rules import PairRules
 from bem3d.results import CapacitanceResult, potential_vector, reduce_floating
-from bem3d.solve.backend import (MAX_ITERATIONS, SUBDOMAIN_SIZE, check_ground_plane,
-                                 choose_backend, plan_memory)
+from bem3d.solve.backend import (
+    MAX_ITERATIONS,
+    SUBDOMAIN_SIZE,
+    check_ground_plane,
+    choose_backend,
+    plan_memory,
+)
 from bem3d.solve.dielectric import plan_dielectrics, solve_system
 from bem3d.solve.dielectric_compressed import DielectricPlan, solve_planned
 from bem3d.solve.krylov import solve_cg, solve_direct

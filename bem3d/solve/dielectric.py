@@ -25,15 +25,14 @@ import numpy as np
 import scipy.linalg
 
 from bem3d.base.errors import MeshError, ModelError, option
-from bem3d.operators.points import winding_numbers
 from bem3d.geometry.panels import Panels
 from bem3d.kernels.pairs import assemble_normal_field
 from bem3d.mesh_io.read import closed_conductors
-from bem3d.operators.rules import PairRules
 from bem3d.operators.dense import DenseOperator, dense_bytes
+from bem3d.operators.points import winding_numbers
 from bem3d.operators.quadrature import graded_rule, map_points, triangle_rule
+from bem3d.operators.rules import PairRules
 from bem3d.results import CapacitanceResult, FieldSources, potential_vector
-
 
 #: Test points per direction of the graded rule on each interface panel (6 x 6 = 36).
 TEST_POINTS = 6

@@ -18,12 +18,12 @@ import numpy as np
 from scipy.sparse.linalg import LinearOperator, gmres
 from threadpoolctl import threadpool_limits
 
-from bem3d.solve.dielectric import normal_field_arguments, system_result, system_rhs, union_panels
 from bem3d.geometry.panels import Panels
-from bem3d.operators.rules import PairRules
 from bem3d.operators.cluster import ClusterTree
 from bem3d.operators.hfield import FieldOperator, FieldPlan, field_arguments
 from bem3d.operators.hmatrix import Compression, HMatrixOperator, HMatrixPlan
+from bem3d.operators.rules import PairRules
+from bem3d.solve.dielectric import normal_field_arguments, system_result, system_rhs, union_panels
 from bem3d.solve.schwarz import SchwarzPreconditioner
 
 #: Krylov vectors kept between GMRES restarts.

@@ -6,8 +6,6 @@ import numpy as np
 import scipy.linalg
 import scipy.sparse
 
-
-
 #: Iterations over which CG's energy-norm error is summed (the delay of the estimate).
 ESTIMATE_DELAY = 4
 

@@ -5,8 +5,8 @@ import numpy as np
 import scipy.linalg
 import scipy.sparse
 
-from bem3d.operators.cluster import ClusterTree
 from bem3d.kernels.blocks import apply_subdomain_inverses, zero_charge_inverse
+from bem3d.operators.cluster import ClusterTree
 
 
 class SchwarzPreconditioner:
