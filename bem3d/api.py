@@ -87,7 +87,7 @@ def _count_panels(model, max_panels, progress):
     if max_panels is not None and max_panels < 1:
         raise ModelError(f"{option('max_panels')} must be at least 1, got {max_panels}")
     # a light read (no geometry checks): the solve reads and checks the meshes itself
-    groups = [model.meshes] + [[path] for path, _ in model.dielectrics]
+    groups = [model.meshes] + [[path] for path, *_ in model.dielectrics]
     n = sum(len(read_conductors(paths, units=model.length_unit, check=False)[0])
             for paths in groups)
     check_panel_count(n, max_panels, ", ".join(str(p) for group in groups for p in group))
@@ -107,16 +107,17 @@ def _announce(n_panels, settings, n_points=0, excitations=1):
 
 
 def _solve(model, settings, panels, progress, start):
-    solved = solve_panels(panels, model.volts, model.relative_permittivity, progress=progress,
-                          ground_z=model.ground_z_m, floating=model.floating,
-                          dielectrics=read_bodies(model.dielectrics, model.length_unit), **settings)
+    solved = solve_panels(panels, model.volts, progress=progress, ground_z=model.ground_z_m,
+                          floating=model.floating,
+                          dielectrics=read_bodies(model.dielectrics, model.length_unit),
+                          **model.medium, **settings)
     solved.solver["peak_memory_MiB"] = peak_memory() / 2**20
     solved.timings_s["total"] = time.perf_counter() - start
     return solved
 
 
 def extract(inputs, *, units=None, volts=None, eps_r=None, ground_plane=None, floating=(),
-            dielectrics=(), backend="auto", solver="auto", tol=1e-7, block_tol=1e-5,
+            dielectrics=(), loss_tangent=None, frequency=None, backend="auto", solver="auto", tol=1e-7, block_tol=1e-5,
             cache=True, cache_dir=None, max_panels=None, out=None, force=False,
             progress=False):
     """Solve for the capacitance matrices of the conductors in `inputs`: a Result.
@@ -125,21 +126,24 @@ def extract(inputs, *, units=None, volts=None, eps_r=None, ground_plane=None, fl
     file (its settings are the defaults here), or a Model. units: the meshes' length unit
     (default m); every length given or returned is in it. volts: {conductor: V}, others at
     0 V. eps_r: background relative permittivity. ground_plane: z of an infinite grounded
-    plane. floating: conductors of zero net charge. dielectrics: {mesh path: eps_r} of closed
-    bodies. backend: 'auto', 'dense' or 'compressed'; solver: 'auto', 'direct' or 'cg'; tol:
+    plane. floating: conductors of zero net charge. dielectrics: {mesh path: eps_r or (eps_r,
+    loss tangent)} of closed bodies. loss_tangent: the background's; frequency: Hz at which the
+    conductance matrix of lossy media is given (default 1 MHz, with a warning). backend: 'auto', 'dense' or 'compressed'; solver: 'auto', 'direct' or 'cg'; tol:
     the CG relative residual; block_tol: the compressed backend's block accuracy; cache,
     cache_dir: the operator cache. max_panels: refuse a larger model before any assembly.
     out: also write the result files into this folder (refused before solving if it holds an
     earlier run's files, unless force). progress: report progress on stderr."""
     start = time.perf_counter()
     model = model_of(inputs, units=units, volts=volts, eps_r=eps_r, ground_plane=ground_plane,
-                     floating=floating, dielectrics=dielectrics)
+                     floating=floating, dielectrics=dielectrics, loss_tangent=loss_tangent,
+                     frequency=frequency)
     settings = solve_settings(backend, solver, tol, block_tol, cache, cache_dir)
     if out is not None:
         check_output_folder(out, model.files(), output_names(model), force)
     _announce(_count_panels(model, max_panels, progress), settings)
     panels, warnings = read_conductors(model.meshes, units=model.length_unit)
-    result = Result(_solve(model, settings, panels, progress, start), panels, model, warnings)
+    result = Result(_solve(model, settings, panels, progress, start), panels, model,
+                    warnings + model.notes)
     if out is not None:
         result.save(out, force)
     return result
@@ -147,8 +151,8 @@ def extract(inputs, *, units=None, volts=None, eps_r=None, ground_plane=None, fl
 
 def field(inputs, *, box=None, margin=0.5, spacing=None, points=41, slices=(), at=None,
           unit_fields=False, png=False, units=None, volts=None, eps_r=None, ground_plane=None,
-          floating=(), dielectrics=(), backend="auto", solver="auto", tol=1e-7,
-          block_tol=1e-5, cache=True, cache_dir=None, max_panels=None, out=None, force=False,
+          floating=(), dielectrics=(), loss_tangent=None, frequency=None, backend="auto",
+          solver="auto", tol=1e-7, block_tol=1e-5, cache=True, cache_dir=None, max_panels=None, out=None, force=False,
           progress=False):
     """Solve as extract does, then evaluate the potential, field and energy density: a
     FieldResult with the energy balance, peak fields, forces and the evaluated arrays.
@@ -160,7 +164,8 @@ def field(inputs, *, box=None, margin=0.5, spacing=None, points=41, slices=(), a
     Other settings as in extract."""
     start = time.perf_counter()
     model = model_of(inputs, units=units, volts=volts, eps_r=eps_r, ground_plane=ground_plane,
-                     floating=floating, dielectrics=dielectrics)
+                     floating=floating, dielectrics=dielectrics, loss_tangent=loss_tangent,
+                     frequency=frequency)
     settings = solve_settings(backend, solver, tol, block_tol, cache, cache_dir)
     request = field_request(LENGTH_UNITS[model.length_unit], box=box, margin=margin,
                             spacing=spacing, points=points, slices=slices, at=at,
@@ -178,7 +183,8 @@ def field(inputs, *, box=None, margin=0.5, spacing=None, points=41, slices=(), a
     _announce(n_panels, settings, n_points, 1 + (panels.n_conductors if unit_fields else 0))
     solved = _solve(model, settings, panels, progress, start)
     field_map = compute_field_map(panels, solved, request, plan, progress)
-    result = FieldResult(solved, panels, model, warnings, field_map, png, request.point_file)
+    result = FieldResult(solved, panels, model, warnings + model.notes, field_map, png,
+                         request.point_file)
     if out is not None:
         result.save(out, force)
     return result
@@ -186,8 +192,8 @@ def field(inputs, *, box=None, margin=0.5, spacing=None, points=41, slices=(), a
 
 
 def sweep(inputs, *, moves=(), each=False, entries=(), units=None, volts=None, eps_r=None,
-          ground_plane=None, floating=(), dielectrics=(), solver="auto", tol=1e-7,
-          workers=None, threads=None, scheduler=None, cache=None, out="bem3d_sweep",
+          ground_plane=None, floating=(), dielectrics=(), loss_tangent=None, frequency=None,
+          solver="auto", tol=1e-7, workers=None, threads=None, scheduler=None, cache=None, out="bem3d_sweep",
           on_event=None):
     """Run many extractions, resumable, into the folder `out`: a post.sweep.run.SweepOutcome
     (records, summary rows, counts).
@@ -202,7 +208,8 @@ def sweep(inputs, *, moves=(), each=False, entries=(), units=None, volts=None, e
     def model(paths):
         return build_model(paths, units=units, volts=volts, eps_r=eps_r,
                            ground_plane=ground_plane, floating=floating,
-                           dielectrics=dielectrics, out=".")
+                           dielectrics=dielectrics, loss_tangent=loss_tangent,
+                           frequency=frequency, out=".")
 
     inputs = [inputs] if isinstance(inputs, (str, Path)) else list(inputs)
     entries = [entries] if isinstance(entries, str) else list(entries)
@@ -216,7 +223,8 @@ def sweep(inputs, *, moves=(), each=False, entries=(), units=None, volts=None, e
 
 def converge(inputs, *, refinements=2, flat=False, crease_angle=CREASE_DEGREES, units=None,
              volts=None, eps_r=None, ground_plane=None, floating=(), dielectrics=(),
-             solver="auto", tol=1e-7, out=None, progress=False):
+             loss_tangent=None, frequency=None, solver="auto", tol=1e-7, out=None,
+             progress=False):
     """Solve the model on its mesh and on one or two midpoint subdivisions: a
     post.convergence.Convergence (each entry on each mesh, Richardson values, error
     estimates, observed orders; .table() for text). Edges whose panels meet at less than
@@ -228,7 +236,8 @@ def converge(inputs, *, refinements=2, flat=False, crease_angle=CREASE_DEGREES, 
     if refinements not in (1, 2):
         raise ModelError(f"{option('refinements')} must be 1 or 2, got {refinements}")
     model = model_of(inputs, units=units, volts=volts, eps_r=eps_r, ground_plane=ground_plane,
-                     floating=floating, dielectrics=dielectrics)
+                     floating=floating, dielectrics=dielectrics, loss_tangent=loss_tangent,
+                     frequency=frequency)
     conv = converge_model(model, refinements, not flat, crease_angle, solver, tol,
                           progress=progress)
     if out is not None:

@@ -4,12 +4,15 @@ A model comes from command-line flags or from a TOML model file such as
 
     length_unit = "mm"                  # m, cm, mm, um, in, mil
     relative_permittivity = 1.0         # uniform background medium
+    loss_tangent = 0.0                  # optional: the background's loss tangent
+    frequency_Hz = 1e6                  # where the conductance G holds (lossy media only)
     meshes = ["sensor_head.msh"]        # paths relative to this file
     ground_plane_z = 0.0                # optional: infinite grounded plane z = const (length_unit)
     floating = ["lid"]                  # optional: conductors with zero net charge
     [[dielectric]]                      # optional, repeatable: a closed body of one material
     mesh = "cover.stl"
     relative_permittivity = 3.8
+    loss_tangent = 0.01                 # optional
     [volts]                             # conductors not listed are at 0 V
     drive = 5.0
     [output]
@@ -33,8 +36,13 @@ from bem3d.base.errors import ModelError, option
 #: the largest reported for bulk ceramics are of order 1e5 (common practice, no source).
 PERMITTIVITY_RANGE = (1.0, 1e6)
 
+#: Where the conductance is given when a medium is lossy and no frequency is: 1 MHz, the
+#: order at which capacitive touch and proximity sensors are driven (common practice, no source).
+DEFAULT_FREQUENCY = 1e6
+
 _TOP_KEYS = {"length_unit", "relative_permittivity", "meshes", "volts", "output",
-             "ground_plane_z", "floating", "dielectric"}
+             "ground_plane_z", "floating", "dielectric", "loss_tangent", "frequency_Hz"}
+_BODY_KEYS = {"mesh", "relative_permittivity", "loss_tangent"}
 _OUTPUT_KEYS = {"folder", "spice_name"}
 
 
@@ -51,7 +59,9 @@ class Model:
     source: str = "command line"
     ground_plane_z: float | None = None
     floating: list = field(default_factory=list)
-    dielectrics: list = field(default_factory=list)     # [(mesh path, relative permittivity)]
+    dielectrics: list = field(default_factory=list)  # [(mesh path, eps_r, loss tangent)]
+    loss_tangent: float = 0.0
+    frequency_Hz: float | None = None
 
     def __post_init__(self):
         self.meshes = [Path(p) for p in self.meshes]
@@ -71,14 +81,45 @@ class Model:
             raise ModelError(f"{self.source}: 'floating' must be a list of conductor names")
         self.floating = list(dict.fromkeys(self.floating))
         checked = []
-        for path, eps in self.dielectrics:
+        for path, eps, *loss in self.dielectrics:
             checked.append((Path(path), _permittivity(eps, f"relative permittivity of {path}",
-                                                      self.source)))
+                                                      self.source),
+                            _loss_tangent(loss[0] if loss else 0.0, f"loss tangent of {path}",
+                                          self.source)))
         self.dielectrics = checked
+        self.loss_tangent = _loss_tangent(self.loss_tangent, "loss tangent", self.source)
+        if self.frequency_Hz is not None:
+            self.frequency_Hz = _number(self.frequency_Hz, "frequency (Hz)", self.source)
+            if self.frequency_Hz <= 0:
+                raise ModelError(f"{self.source}: frequency must be positive, got "
+                                 f"{self.frequency_Hz:g} Hz")
+
+    @property
+    def lossy(self):
+        """Does any medium have a loss tangent?"""
+        return bool(self.loss_tangent) or any(loss for _, _, loss in self.dielectrics)
+
+    @property
+    def notes(self):
+        """Settings taken by default that the user should hear of."""
+        if self.lossy and self.frequency_Hz is None:
+            return [f"a loss tangent is given without a frequency: the conductance is given at "
+                    f"{DEFAULT_FREQUENCY:g} Hz"]
+        return []
+
+    @property
+    def medium(self):
+        """The background medium and the frequency (Hz) of the conductance, as keyword
+        arguments of solve.conductors.solve_panels."""
+        frequency = None
+        if self.lossy:
+            frequency = DEFAULT_FREQUENCY if self.frequency_Hz is None else self.frequency_Hz
+        return {"eps_r": self.relative_permittivity, "loss_tangent": self.loss_tangent,
+                "frequency": frequency}
 
     def files(self):
         """Every file the model reads: meshes, dielectric bodies, the model file."""
-        files = [*self.meshes, *(path for path, _ in self.dielectrics)]
+        files = [*self.meshes, *(path for path, _, _ in self.dielectrics)]
         return files + ([Path(self.source)] if Path(self.source).is_file() else [])
 
     @property
@@ -87,6 +128,13 @@ class Model:
         if self.ground_plane_z is None:
             return None
         return self.ground_plane_z * LENGTH_UNITS[self.length_unit]
+
+
+def _loss_tangent(value, what, source):
+    number = _number(value, what, source)
+    if not 0 <= number < 1:
+        raise ModelError(f"{source}: {what} must be at least 0 and below 1, got {number:g}")
+    return number
 
 
 def _number(value, what, source):
@@ -145,29 +193,36 @@ def load_model(path):
     here = path.parent
     bodies = data.get("dielectric", [])
     if not isinstance(bodies, list) or not all(
-            isinstance(b, dict) and set(b) == {"mesh", "relative_permittivity"}
+            isinstance(b, dict) and {"mesh", "relative_permittivity"} <= set(b) <= _BODY_KEYS
             and isinstance(b["mesh"], str) for b in bodies):
-        raise ModelError(f"{path}: each [[dielectric]] needs exactly 'mesh' (a file name) and "
-                         "'relative_permittivity'")
+        raise ModelError(f"{path}: each [[dielectric]] needs 'mesh' (a file name) and "
+                         "'relative_permittivity', and may have 'loss_tangent'")
     return Model(meshes=[here / m for m in meshes], length_unit=unit,
                  relative_permittivity=data.get("relative_permittivity", 1.0), volts=volts,
                  output_folder=None if folder is None else here / folder,
                  spice_name=spice_name, source=str(path),
                  ground_plane_z=data.get("ground_plane_z"), floating=data.get("floating", []),
-                 dielectrics=[(here / b["mesh"], b["relative_permittivity"]) for b in bodies])
+                 dielectrics=[(here / b["mesh"], b["relative_permittivity"],
+                               b.get("loss_tangent", 0.0)) for b in bodies],
+                 loss_tangent=data.get("loss_tangent", 0.0),
+                 frequency_Hz=data.get("frequency_Hz"))
 
 
 def parse_dielectrics(items):
-    """[(Path('cover.stl'), 3.8)] from ['cover.stl=3.8', ...]."""
+    """[(Path('cover.stl'), 3.8, 0.0), (Path('board.stl'), 4.4, 0.02)] from
+    ['cover.stl=3.8', 'board.stl=4.4,0.02', ...]."""
     bodies = []
     for item in items or []:
         name, sep, value = item.rpartition("=")
+        numbers = value.split(",")
         try:
-            bodies.append((Path(name), float(value)))
+            bodies.append((Path(name), float(numbers[0]),
+                           float(numbers[1]) if len(numbers) == 2 else 0.0))
         except ValueError:
             sep = ""
-        if not sep or not name:
-            raise ModelError(f"{option('dielectrics')}: expected FILE=EPS_R, got '{item}'")
+        if not sep or not name or len(numbers) > 2:
+            raise ModelError(f"{option('dielectrics')}: expected FILE=EPS_R or "
+                             f"FILE=EPS_R,LOSS_TANGENT, got '{item}'")
     return bodies
 
 
@@ -186,14 +241,15 @@ def parse_volts(items, source=option("volts")):
 
 
 def build_model(inputs, *, units=None, volts=None, eps_r=None, ground_plane=None, floating=(),
-                dielectrics=(), out=None):
+                dielectrics=(), loss_tangent=None, frequency=None, out=None):
     """The Model of `inputs` (mesh paths, or one .toml model file whose settings are the
     defaults) with the given settings on top; None (or empty) leaves a setting as it is.
 
     units: mesh length unit; volts: {name: V}; eps_r: background relative permittivity;
     ground_plane: z of a grounded plane (mesh unit); floating: conductor names; dielectrics:
-    [(mesh path, relative permittivity)] or {path: eps_r}; out: output folder (default
-    <first input>_result)."""
+    [(mesh path, eps_r[, loss tangent])] or {path: eps_r or (eps_r, loss tangent)};
+    loss_tangent: the background's; frequency: Hz at which the conductance is given (lossy
+    media); out: output folder (default <first input>_result)."""
     inputs = [inputs] if isinstance(inputs, (str, Path)) else list(inputs)
     if not inputs:
         raise ModelError("no mesh files given")
@@ -209,8 +265,14 @@ def build_model(inputs, *, units=None, volts=None, eps_r=None, ground_plane=None
     if ground_plane is not None:
         model.ground_plane_z = ground_plane
     model.floating += list(floating or ())
-    dielectrics = dielectrics.items() if isinstance(dielectrics, dict) else dielectrics or ()
-    model.dielectrics += [(Path(path), eps) for path, eps in dielectrics]
+    if isinstance(dielectrics, dict):
+        dielectrics = [(path, *(value if isinstance(value, (tuple, list)) else (value,)))
+                       for path, value in dielectrics.items()]
+    model.dielectrics += [(Path(path), *material) for path, *material in dielectrics or ()]
+    if loss_tangent is not None:
+        model.loss_tangent = loss_tangent
+    if frequency is not None:
+        model.frequency_Hz = frequency
     if out is not None:
         model.output_folder = Path(out)
     if model.output_folder is None:

@@ -17,7 +17,8 @@ class Result:
     others at 0 V; mutual (n, n) F: the two-terminal capacitances (diagonal: to infinity or
     ground); potentials (V), charges (C) and energy (J) at the given potentials; sigma (C/m^2)
     on each panel at those potentials; panels: the conductor panels in `units`; warnings;
-    solver and timings records. Shown in a notebook it prints its tables, never arrays."""
+    solver and timings records. With lossy media: conductance and mutual_conductance (S) at
+    frequency (Hz), I = (G + j omega C) V; all three None otherwise. Shown in a notebook it prints its tables, never arrays."""
 
     def __init__(self, solved, panels, model, warnings=()):
         self._solved, self._panels_m, self.model = solved, panels, model
@@ -37,6 +38,12 @@ class Result:
     energy = property(lambda self: self._solved.energy, doc="stored energy 1/2 V^T C V (J)")
     floating = property(lambda self: dict(self._solved.floating),
                         doc="{name: V} of floating conductors at the given potentials")
+    conductance = property(lambda self: self._solved.conductance,
+                           doc="Maxwell-form conductance matrix (S) at `frequency`, or None")
+    mutual_conductance = property(lambda self: self._solved.mutual_conductance,
+                                  doc="two-terminal conductances (S), or None")
+    frequency = property(lambda self: self._solved.frequency_Hz,
+                         doc="frequency (Hz) of the conductance, or None")
     solver = property(lambda self: self._solved.solver, doc="how the charges were found")
     timings = property(lambda self: self._solved.timings_s, doc="seconds by stage")
 
@@ -68,25 +75,33 @@ class Result:
                 f"lengths in {self.units}>\n{self.table()}")
 
     def _repr_html_(self):
-        scale, prefix = prefix_for(self._solved.maxwell)
         head = "".join(f"<th>{html.escape(n)}</th>" for n in self.names)
         parts = [f"<p>{len(self.names)} conductors, {len(self._panels_m)} panels, lengths in "
                  f"{html.escape(self.units)}; stored energy {self.energy:.5g} J</p>"]
-        for title, matrix in (("Maxwell capacitance matrix", self._solved.maxwell),
-                              ("Mutual capacitance (diagonal: to infinity/ground)",
-                               self.mutual)):
+        tables = [("Maxwell capacitance matrix", self._solved.maxwell, "F"),
+                  ("Mutual capacitance (diagonal: to infinity/ground)", self.mutual, "F")]
+        if self.conductance is not None:
+            tables.append((f"Maxwell conductance matrix at {self.frequency:.6g} Hz",
+                           self.conductance, "S"))
+        for title, matrix, unit in tables:
+            scale, prefix = prefix_for(self._solved.maxwell if unit == "F" else matrix)
             rows = "".join(f"<tr><th>{html.escape(n)}</th>"
                            + "".join(f"<td>{v / scale:.5g}</td>" for v in row) + "</tr>"
                            for n, row in zip(self.names, matrix))
-            parts.append(f"<table><caption>{title} [{prefix}F]</caption>"
+            parts.append(f"<table><caption>{title} [{prefix}{unit}]</caption>"
                          f"<tr><th></th>{head}</tr>{rows}</table>")
         return "".join(parts)
 
     def to_dataframe(self, matrix="maxwell"):
-        """The Maxwell (or 'mutual') matrix in F as a pandas DataFrame labelled by conductor."""
+        """The Maxwell (or 'mutual') matrix in F, or 'conductance' / 'mutual_conductance' in S,
+        as a pandas DataFrame labelled by conductor."""
         import pandas as pd
 
-        values = {"maxwell": self._solved.maxwell, "mutual": self.mutual}[matrix]
+        values = {"maxwell": self._solved.maxwell, "mutual": self.mutual,
+                  "conductance": self.conductance,
+                  "mutual_conductance": self.mutual_conductance}[matrix]
+        if values is None:
+            raise ValueError(f"no {matrix} matrix: every medium is lossless")
         return pd.DataFrame(values, index=list(self.names), columns=list(self.names))
 
     def inputs(self):

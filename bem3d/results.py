@@ -59,9 +59,12 @@ def reduce_floating(result, floating):
     t = [i for i, n in enumerate(result.names) if n not in floating]
     if not t:
         raise ModelError(f"{option('floating')}: at least one conductor must stay a terminal")
-    c = result.maxwell
+    c = result.maxwell if result.loss is None else result.maxwell - 1j * result.loss
     transfer = -np.linalg.solve(c[np.ix_(f, f)], c[np.ix_(f, t)])     # V_f per V_t
     reduced = c[np.ix_(t, t)] + c[np.ix_(t, f)] @ transfer
+    reduced = 0.5 * (reduced + reduced.T)
+    # a lossy floating conductor's potential is a phasor: its in-phase part is kept
+    transfer = transfer.real
     sigma = result.sigma[:, t] + result.sigma[:, f] @ transfer
     v_t = result.potentials[t]
     names = tuple(result.names[i] for i in t)
@@ -69,9 +72,10 @@ def reduce_floating(result, floating):
     if sources is not None:
         sources = replace(sources, sigma=sources.sigma[:, t] + sources.sigma[:, f] @ transfer)
     return CapacitanceResult(
-        names=names, maxwell=0.5 * (reduced + reduced.T), sigma=sigma, potentials=v_t,
+        names=names, maxwell=reduced.real, sigma=sigma, potentials=v_t,
         n_panels=result.n_panels, solver=result.solver, timings_s=result.timings_s,
-        asymmetry=result.asymmetry,
+        asymmetry=result.asymmetry, loss=None if result.loss is None else -reduced.imag,
+        frequency_Hz=result.frequency_Hz,
         floating={result.names[i]: float(v) for i, v in zip(f, transfer @ v_t)},
         sources=sources)
 
@@ -87,6 +91,8 @@ class CapacitanceResult:
     potential at the given excitation); sigma then includes their induced charge.
     sources: where the field comes from when it is not just the conductors' sigma (dielectric
     interfaces carry bound charge).
+    loss: with lossy media, -Im C* (F) of the complex Maxwell matrix C* = maxwell - j loss, so
+    that the conductance matrix is G = omega loss at frequency_Hz (I = (G + j omega C) V).
     """
 
     names: tuple
@@ -99,6 +105,20 @@ class CapacitanceResult:
     asymmetry: float = 0.0
     floating: dict = field(default_factory=dict)
     sources: FieldSources | None = None
+    loss: np.ndarray | None = None
+    frequency_Hz: float | None = None
+
+    @property
+    def conductance(self):
+        """Maxwell-form conductance matrix G (S) at frequency_Hz, or None when lossless."""
+        if self.loss is None:
+            return None
+        return 2 * np.pi * self.frequency_Hz * self.loss
+
+    @property
+    def mutual_conductance(self):
+        """Two-terminal conductances (S) in the form of `mutual`, or None when lossless."""
+        return None if self.loss is None else mutual_from_maxwell(self.conductance)
 
     def field_sources(self, panels):
         """FieldSources of this result (the conductor panels alone unless dielectrics)."""
@@ -145,17 +165,23 @@ class CapacitanceResult:
 
     def table(self):
         """The capacitance matrices as text, in one readable unit."""
-        scale, prefix = prefix_for(self.maxwell)
         width = max(12, max(len(n) for n in self.names) + 2)
 
-        def block(title, matrix):
-            lines = [f"{title} [{prefix}F]", " " * width + "".join(f"{n:>{width}}" for n in self.names)]
+        def block(title, matrix, scaled, unit):
+            scale, prefix = scaled
+            lines = [f"{title} [{prefix}{unit}]",
+                     " " * width + "".join(f"{n:>{width}}" for n in self.names)]
             for name, row in zip(self.names, matrix):
                 lines.append(f"{name:<{width}}" + "".join(f"{v / scale:>#{width}.5g}" for v in row))
             return lines
 
-        lines = block("Maxwell capacitance matrix", self.maxwell) + [""]
-        lines += block("Mutual capacitance (diagonal: to infinity/ground)", self.mutual)
+        lines = block("Maxwell capacitance matrix", self.maxwell, prefix_for(self.maxwell), "F")
+        lines += [""] + block("Mutual capacitance (diagonal: to infinity/ground)", self.mutual,
+                              prefix_for(self.maxwell), "F")
+        if self.loss is not None:
+            g = self.conductance
+            lines += [""] + block(f"Maxwell conductance matrix at {self.frequency_Hz:.6g} Hz", g,
+                                  prefix_for(g), "S")
         lines += ["", f"panels: {self.n_panels}    stored energy at the given potentials: "
                       f"{format_quantity(self.energy, 'J')}"]
         checks = self.checks()

@@ -169,3 +169,22 @@ def test_converge_extrapolates_towards_the_closed_form(tmp_path):
     # flat panels inscribed in the sphere converge like h^2 from below (README, Mesh
     # convergence): one Richardson step removes most of the error
     assert abs(extrapolated / exact - 1) < 0.2 * abs(finest / exact - 1)
+
+
+def test_lossy_dielectric_through_the_api(tmp_path):
+    # sphere a = 1 in a shell b = 1.6 of eps_r 3.5 (1 - j 0.02): C* = 4 pi eps0 /
+    # ((1 - 1/b)/eps* + 1/b) from Gauss's law (Jackson, Classical Electrodynamics, 3rd ed.
+    # 1999, sec. 4.4); the same numbers whichever unit the meshes are read in
+    ball, shell = tmp_path / "ball.stl", tmp_path / "shell.stl"
+    for path, radius in ((ball, 1.0), (shell, 1.6)):
+        p, t = shapes.octahedral_sphere(radius, 6)
+        meshio.write(path, meshio.Mesh(p, [("triangle", t)]))
+    result = bem3d.extract(ball, dielectrics={shell: (3.5, 0.02)}, frequency=1e5)
+    c = 4 * np.pi * ref.EPS0 / ((1 - 1 / 1.6) / (3.5 * (1 - 0.02j)) + 1 / 1.6)
+    assert result.frequency == 1e5
+    assert result.conductance[0, 0] == pytest.approx(-2 * np.pi * 1e5 * c.imag, rel=5e-2)
+    assert "conductance" in result._repr_html_()
+    assert result.to_dataframe("conductance").iloc[0, 0] == result.conductance[0, 0]
+    assert bem3d.extract(ball, dielectrics={shell: 3.5}).conductance is None
+    defaulted = bem3d.extract(ball, dielectrics={shell: (3.5, 0.02)})
+    assert defaulted.frequency == 1e6 and any("frequency" in w for w in defaulted.warnings)

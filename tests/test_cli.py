@@ -312,6 +312,31 @@ def test_ground_plane_floating_and_dielectric_options(tmp_path, capsys):
     assert flag["maxwell_capacitance_F"][0][0] == pytest.approx(c, rel=2e-2)
 
 
+def test_lossy_dielectric_gives_the_conductance_matrix(tmp_path, capsys):
+    # sphere a = 1 in a shell b = 1.6 of eps_r 3.5 (1 - j 0.02): C* from Gauss's law (Jackson,
+    # Classical Electrodynamics, 3rd ed. 1999, sec. 4.4) with the complex permittivity
+    ball = write_mesh(tmp_path / "ball.stl", [shapes.octahedral_sphere(1.0, 6, center=(0, 0, 3))])
+    shell = write_mesh(tmp_path / "shell.stl", [shapes.octahedral_sphere(1.6, 6, center=(0, 0, 3))])
+    code, stdout, err = run(["extract", ball, "--dielectric", f"{shell}=3.5,0.02",
+                             "--frequency", "1e5", "--out", tmp_path / "g"], capsys)
+    assert code == 0 and "Maxwell conductance matrix at 100000 Hz" in stdout
+    record = json.loads((tmp_path / "g" / "result.json").read_text())
+    c = 4 * np.pi * EPS0 / ((1 / (3.5 * (1 - 0.02j))) * (1 - 1 / 1.6) + 1 / 1.6)
+    assert record["frequency_Hz"] == 1e5
+    assert record["maxwell_capacitance_F"][0][0] == pytest.approx(c.real, rel=2e-2)
+    assert record["conductance_S"][0][0] == pytest.approx(-2 * np.pi * 1e5 * c.imag, rel=5e-2)
+    spice = (tmp_path / "g" / "ball.cir").read_text() if (tmp_path / "g" / "ball.cir").exists() \
+        else next((tmp_path / "g").glob("*.cir")).read_text()
+    resistor = [line for line in spice.splitlines() if line.startswith("R_")]
+    assert len(resistor) == 1 and "100000 Hz" in spice
+    assert float(resistor[0].split()[-1]) == pytest.approx(1 / record["conductance_S"][0][0])
+    # no frequency: the conductance at the default one, said on stderr
+    code, _, err = run(["extract", ball, "--dielectric", f"{shell}=3.5,0.02",
+                        "--out", tmp_path / "h"], capsys)
+    record = json.loads((tmp_path / "h" / "result.json").read_text())
+    assert code == 0 and record["frequency_Hz"] == 1e6 and "without a frequency" in err
+
+
 @pytest.mark.parametrize("extra, words", [
     (["--dielectric", "{d}/shell.stl=-2"], "must lie between 1"),
     (["--dielectric", "{d}/shell.stl=0.5"], "must lie between 1"),
@@ -320,6 +345,12 @@ def test_ground_plane_floating_and_dielectric_options(tmp_path, capsys):
     (["--ground-plane", "3"], "below the plane"),
     (["--ground-plane", "1.8", "--dielectric", "{d}/shell.stl=2"], "dielectric body"),
     (["--floating", "ghost"], "ghost"),
+    (["--dielectric", "{d}/shell.stl=2,1.5"], "loss tangent"),
+    (["--dielectric", "{d}/shell.stl=2,-0.1"], "loss tangent"),
+    (["--dielectric", "{d}/shell.stl=2,0.01,3"], "FILE=EPS_R"),
+    (["--dielectric", "{d}/shell.stl=2,0.01", "--frequency", "0"], "frequency"),
+    (["--loss-tangent", "0.02", "--frequency", "-1"], "frequency"),
+    (["--loss-tangent", "nan"], "loss tangent"),
 ])
 def test_bad_environment_options_exit_2(tmp_path, capsys, extra, words):
     ball = write_mesh(tmp_path / "ball.stl", [shapes.octahedral_sphere(1.0, 4, center=(0, 0, 3))])

@@ -183,3 +183,86 @@ def test_microstrip_per_unit_length_against_hammerstad_jensen():
         c.append(solve_with_dielectrics(strip, [board], ground_z=0.0).maxwell[0, 0])
     per_length = (c[1] - c[0]) / 4.0
     assert per_length == pytest.approx(hammerstad_jensen_capacitance(2.0, 1.0, 4.4), rel=0.03)
+
+
+# Lossy media: complex permittivity eps0 eps_r (1 - j tan d) in the static equations (the
+# quasi-static phasor form of Gauss's law, e.g. Ramo, Whinnery & Van Duzer, Fields and Waves in
+# Communication Electronics, 3rd ed. 1994, sec. 13.3); C* = C - j G / omega.
+
+def coated_sphere_closed_form(a, b, eps):
+    # Gauss's law through the coating a < r < b (eps) and the vacuum outside (Jackson 1999,
+    # sec. 4.4): 1/C = (1/(4 pi eps0)) ((1/a - 1/b)/eps + 1/b)
+    return 4 * math.pi * EPS0 / ((1 / a - 1 / b) / eps + 1 / b)
+
+
+@pytest.mark.parametrize("backend", ["dense", "compressed"])
+def test_lossy_coated_sphere_against_the_complex_closed_form(backend):
+    a, b, m, eps_r, tan_d, f = 1.0, 1.5, 10, 4.0, 0.05, 1e6
+    coating = shell_body(a, b, m, eps_r)
+    coating = DielectricBody("coating", eps_r, coating.panels, loss_tangent=tan_d)
+    result = solve_panels(sphere(a, m, "ball"), dielectrics=[coating], frequency=f,
+                          backend=backend)
+    exact = coated_sphere_closed_form(a, b, eps_r * (1 - 1j * tan_d))
+    assert result.maxwell[0, 0] == pytest.approx(exact.real, rel=1e-2)
+    omega = 2 * math.pi * f
+    assert result.conductance[0, 0] == pytest.approx(-omega * exact.imag, rel=2e-2)
+    assert result.frequency_Hz == f
+
+
+def test_one_loss_tangent_everywhere_gives_g_equal_omega_tan_d_c():
+    # every medium eps_r (1 - j tan d) with the same tan d: the complex factor is common to all
+    # of them, so C* = (1 - j tan d) C exactly and G = omega tan d C (any layering)
+    tan_d, f = 0.02, 2.5e5
+    conductors = joined(sphere(0.5, 6, "a", centre=(-1.0, 0, 0)),
+                        sphere(0.5, 6, "b", centre=(1.0, 0, 0)))
+    slab = DielectricBody("slab", 4.4, box_panels(1.0, 2.0, 2.0, 4, (0, 0, 0), "slab"),
+                          loss_tangent=tan_d)
+    result = solve_panels(conductors, eps_r=2.0, loss_tangent=tan_d, frequency=f,
+                          dielectrics=[slab], backend="dense")
+    lossless = solve_panels(conductors, eps_r=2.0, backend="dense",
+                            dielectrics=[DielectricBody("slab", 4.4, slab.panels)])
+    np.testing.assert_allclose(result.maxwell, lossless.maxwell, rtol=1e-9)
+    np.testing.assert_allclose(result.conductance, 2 * math.pi * f * tan_d * lossless.maxwell,
+                               rtol=1e-9)
+    alone = solve_panels(conductors, eps_r=2.0, loss_tangent=tan_d, frequency=f)
+    np.testing.assert_allclose(alone.conductance, 2 * math.pi * f * tan_d * alone.maxwell,
+                               rtol=1e-12)
+
+
+def test_conductance_matrix_is_symmetric_positive_semidefinite():
+    # a passive lossy medium dissipates power 1/2 V^T G V >= 0 for every V (Poynting's theorem,
+    # Ramo, Whinnery & Van Duzer 1994, sec. 3.13)
+    conductors = joined(sphere(0.5, 6, "a", centre=(-1.0, 0, 0)),
+                        sphere(0.5, 6, "b", centre=(1.0, 0, 0)),
+                        sphere(0.3, 4, "c", centre=(0, 1.2, 0)))
+    slab = DielectricBody("slab", 4.4, box_panels(1.0, 2.0, 2.0, 4, (0, 0, 0), "slab"),
+                          loss_tangent=0.03)
+    g = solve_panels(conductors, dielectrics=[slab], frequency=1e6, backend="dense").conductance
+    np.testing.assert_allclose(g, g.T, rtol=1e-12)
+    assert np.linalg.eigvalsh(g).min() >= -1e-9 * np.abs(g).max()
+    assert np.abs(g).max() > 0
+
+
+@pytest.mark.parametrize("tan_d, frequency", [(-0.01, 1e6), (1.0, 1e6), (0.02, 0.0),
+                                              (0.02, -5.0), (0.02, float("nan")), (0.02, None)])
+def test_bad_loss_tangent_or_frequency_is_refused(tan_d, frequency):
+    slab = DielectricBody("slab", 4.4, box_panels(1.0, 1.0, 1.0, 3, (0, 0, 0), "slab"),
+                          loss_tangent=tan_d)
+    with pytest.raises(ModelError):
+        solve_panels(sphere(0.3, 3, "s", centre=(0, 0, 2.0)), dielectrics=[slab],
+                     frequency=frequency)
+
+
+def test_lossy_filled_spherical_capacitor_with_sheet_electrodes():
+    # the filled spherical capacitor (Jackson 1999, sec. 4.4) with a lossy filling:
+    # C* = 4 pi eps0 eps_r (1 - j tan d) a b / (b - a) for the inner pair, G = omega tan d C
+    a, b, m, eps_r, tan_d, f = 1.0, 2.0, 10, 4.0, 0.02, 1e5
+    conductors = joined(sphere(a, m, "inner"), sphere(b, m, "outer"))
+    shell = shell_body(a, b, m, eps_r)
+    shell = DielectricBody("shell", eps_r, shell.panels, loss_tangent=tan_d)
+    result = solve_panels(conductors, dielectrics=[shell], frequency=f, backend="dense")
+    pair = 4 * math.pi * EPS0 * eps_r * a * b / (b - a)
+    assert result.maxwell[0, 0] == pytest.approx(pair, rel=1e-2)
+    assert result.conductance[0, 0] == pytest.approx(2 * math.pi * f * tan_d * pair, rel=1e-2)
+    # the outer sphere's charge to infinity sits on its vacuum face: no loss there
+    assert result.conductance.sum() == pytest.approx(0.0, abs=1e-3 * result.conductance[0, 0])

@@ -18,9 +18,14 @@ def add_model_options(p):
                    help="infinite grounded plane z = Z (mesh unit), by the method of images")
     p.add_argument("--floating", action="append", default=[], metavar="NAME",
                    help="a conductor with zero net charge and unknown potential; repeatable")
-    p.add_argument("--dielectric", action="append", default=[], metavar="FILE=EPS_R",
-                   help="a closed dielectric body (mesh file) and its relative permittivity; "
-                        "repeatable")
+    p.add_argument("--dielectric", action="append", default=[], metavar="FILE=EPS_R[,TAN_D]",
+                   help="a closed dielectric body (mesh file), its relative permittivity and "
+                        "optionally its loss tangent; repeatable")
+    p.add_argument("--loss-tangent", type=float, metavar="TAN_D",
+                   help="loss tangent of the background medium (default 0)")
+    p.add_argument("--frequency", type=float, metavar="HZ",
+                   help="frequency at which the conductance of lossy media is given "
+                        "(default 1e6 Hz when a loss tangent is given)")
 
 
 def add_run_guards(p):
@@ -60,4 +65,5 @@ def model_from_args(args):
     """The Model of the parsed model options (a model file's settings under the flags)."""
     return build_model(args.inputs, units=args.units, volts=parse_volts(args.volts),
                        eps_r=args.eps_r, ground_plane=args.ground_plane, floating=args.floating,
-                       dielectrics=parse_dielectrics(args.dielectric), out=args.out)
+                       dielectrics=parse_dielectrics(args.dielectric),
+                       loss_tangent=args.loss_tangent, frequency=args.frequency, out=args.out)

@@ -118,7 +118,9 @@ def run(args):
     outcome = api.sweep(args.inputs, moves=args.moves, each=args.each, entries=args.entries,
                         units=args.units, volts=parse_volts(args.volts), eps_r=args.eps_r,
                         ground_plane=args.ground_plane, floating=args.floating,
-                        dielectrics=parse_dielectrics(args.dielectric), solver=args.solver,
+                        dielectrics=parse_dielectrics(args.dielectric),
+                        loss_tangent=args.loss_tangent, frequency=args.frequency,
+                        solver=args.solver,
                         tol=args.tol, workers=args.workers, threads=args.threads,
                         scheduler=args.scheduler, cache=args.cache,
                         out=args.out or "bem3d_sweep", on_event=_Progress(args.json_lines))

@@ -30,6 +30,10 @@ def result_record(result, extra=None):
         "timings_s": result.timings_s,
         "caution": CAUTION,
     }
+    if result.loss is not None:
+        record.update({"frequency_Hz": result.frequency_Hz,
+                       "conductance_S": result.conductance.tolist(),
+                       "mutual_conductance_S": result.mutual_conductance.tolist()})
     record.update(extra or {})
     return record
 
@@ -39,9 +43,14 @@ def write_json(result, target, extra=None):
 
 
 def write_csv(result, target):
-    """Both matrices in one table: columns matrix, conductor, then one column per conductor (F)."""
+    """Both matrices in one table: columns matrix, conductor, then one column per conductor (F);
+    with lossy media the conductance matrices follow (S)."""
     rows = ["matrix,conductor," + ",".join(result.names)]
-    for label, matrix in [("maxwell_F", result.maxwell), ("mutual_F", result.mutual)]:
+    tables = [("maxwell_F", result.maxwell), ("mutual_F", result.mutual)]
+    if result.loss is not None:
+        tables += [("maxwell_conductance_S", result.conductance),
+                   ("mutual_conductance_S", result.mutual_conductance)]
+    for label, matrix in tables:
         for name, row in zip(result.names, matrix):
             rows.append(f"{label},{name}," + ",".join(f"{v:.9e}" for v in row))
     write_text(target, "\n".join(rows) + "\n")
@@ -53,18 +62,24 @@ def spice_node(name):
 
 
 def write_spice(result, target, subckt="bem3d_capacitance"):
-    """A .SUBCKT of the mutual capacitances; port REF is the far/ground reference."""
+    """A .SUBCKT of the mutual capacitances, and with lossy media a resistor 1/G for each
+    mutual conductance; port REF is the far/ground reference."""
     nodes = [spice_node(n) for n in result.names]
     mutual = result.mutual
+    conductance = result.mutual_conductance
     lines = [f"* mutual capacitances from bem3d {__version__}; {result.n_panels} panels",
-             "* REF is the reference at infinity (or ground); tie it to your circuit ground.",
-             f".SUBCKT {spice_node(subckt)} " + " ".join(nodes) + " REF"]
+             "* REF is the reference at infinity (or ground); tie it to your circuit ground."]
+    if conductance is not None:
+        lines.append(f"* the resistors give the dielectric loss at {result.frequency_Hz:.6g} Hz "
+                     "only (G grows in proportion to frequency for a constant loss tangent)")
+    lines.append(f".SUBCKT {spice_node(subckt)} " + " ".join(nodes) + " REF")
     for i, a in enumerate(nodes):
-        for j in range(i + 1, len(nodes)):
+        ends = [(j, nodes[j]) for j in range(i + 1, len(nodes))] + [(i, "REF")]
+        for j, b in ends:
             if mutual[i, j] > 0:
-                lines.append(f"C_{a}_{nodes[j]} {a} {nodes[j]} {mutual[i, j]:.6e}")
-        if mutual[i, i] > 0:
-            lines.append(f"C_{a}_REF {a} REF {mutual[i, i]:.6e}")
+                lines.append(f"C_{a}_{b} {a} {b} {mutual[i, j]:.6e}")
+            if conductance is not None and conductance[i, j] > 0:
+                lines.append(f"R_{a}_{b} {a} {b} {1.0 / conductance[i, j]:.6e}")
     lines.append(f".ENDS {spice_node(subckt)}")
     write_text(target, "\n".join(lines) + "\n")
 

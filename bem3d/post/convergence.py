@@ -107,10 +107,10 @@ class Convergence:
 
 def converge(panels, refinements=2, smooth=True, crease_degrees=CREASE_DEGREES, volts=None,
              eps_r=1.0, solver="auto", tol=1e-7, progress=False, source="mesh", ground_z=None,
-             floating=(), dielectrics=()):
+             floating=(), dielectrics=(), loss_tangent=0.0, frequency=None):
     """Solve on `panels` (m) and on 1 or 2 midpoint subdivisions of it; extrapolate.
 
-    volts, eps_r, solver, tol, ground_z (m), floating, dielectrics: as for
+    volts, eps_r, solver, tol, ground_z (m), floating, dielectrics, loss_tangent, frequency: as for
     solve.conductors.solve_panels; the dielectric bodies' meshes are refined with the conductors'.
     source: the file name(s) that geometry errors of the refined meshes start with.
     progress: print each mesh's size and the solver's progress on stderr."""
@@ -131,7 +131,8 @@ def converge(panels, refinements=2, smooth=True, crease_degrees=CREASE_DEGREES, 
             print(f"mesh {level}: {len(meshes[level])} panels", file=sys.stderr, flush=True)
         results[level] = solve_panels(meshes[level], volts, eps_r, PairRules(), solver, tol,
                                       progress, ground_z=ground_z, floating=floating,
-                                      dielectrics=bodies[level])
+                                      dielectrics=bodies[level], loss_tangent=loss_tangent,
+                                      frequency=frequency)
     return Convergence(meshes, results, richardson([r.maxwell for r in results]),
                        richardson([r.mutual for r in results]), smooth)
 
@@ -147,8 +148,9 @@ def converge_model(model, refinements=2, smooth=True, crease_degrees=CREASE_DEGR
     """The convergence study of a Model: its meshes read (metres) and refined with its
     dielectric bodies, solved at its potentials; the Convergence holds the mesh warnings."""
     panels, warnings = read_conductors(model.meshes, units=model.length_unit)
-    conv = converge(panels, refinements, smooth, crease_degrees, model.volts,
-                    model.relative_permittivity, solver, tol, progress,
-                    mesh_sources(model, panels), model.ground_z_m, model.floating,
-                    read_bodies(model.dielectrics, model.length_unit))
-    return dataclasses.replace(conv, warnings=list(warnings))
+    medium = model.medium
+    conv = converge(panels, refinements, smooth, crease_degrees, model.volts, medium["eps_r"],
+                    solver, tol, progress, mesh_sources(model, panels), model.ground_z_m,
+                    model.floating, read_bodies(model.dielectrics, model.length_unit),
+                    medium["loss_tangent"], medium["frequency"])
+    return dataclasses.replace(conv, warnings=list(warnings) + model.notes)

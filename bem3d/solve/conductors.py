@@ -1,13 +1,15 @@
 """The one path from panels to a CapacitanceResult: choose the backend, assemble, solve, reduce."""
 
+import math
 import sys
 import time
 
 import numpy as np
 from threadpoolctl import threadpool_limits
 
-from bem3d.base.errors import option
+from bem3d.base.errors import ModelError, option
 from bem3d.base.resources import MEMORY_FRACTION, available_memory, format_bytes, require_memory
+from bem3d.geometry.bodies import complex_permittivity
 from bem3d.operators.cache import OperatorCache, cache_key
 from bem3d.operators.dense import DenseOperator
 from bem3d.operators.hmatrix import Compression, HMatrixOperator, HMatrixPlan
@@ -38,7 +40,8 @@ def _largest(values):
 
 def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto", tol=1e-7,
                  progress=False, ground_z=None, floating=(), dielectrics=(), *, backend="auto",
-                 compression=None, cache=False, cache_dir=None):
+                 compression=None, cache=False, cache_dir=None, loss_tangent=0.0,
+                 frequency=None):
     """Capacitance of the conductors in `panels` (metres) in a medium of relative permittivity eps_r.
 
     volts: {conductor name: V}; conductors not named are at 0 V. solver: 'direct' (Cholesky),
@@ -53,16 +56,24 @@ def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto"
     cache.default_folder()) and reuse them when the same panels and settings come again.
     ground_z: height (m) of an infinite grounded plane (method of images), or None.
     floating: names of conductors with zero net charge and unknown potential.
-    dielectrics: dielectric.DielectricBody list; eps_r is then the background around them."""
+    dielectrics: dielectric.DielectricBody list; eps_r is then the background around them.
+    loss_tangent: the background's; with it or lossy bodies, frequency (Hz) is needed and the
+    result carries the conductance matrix G at that frequency (CapacitanceResult.loss)."""
     volts = dict(volts or {})
     potentials = potential_vector(panels.names, volts, floating)
     if ground_z is not None:
         check_ground_plane(panels, ground_z)
+    lossy = check_loss(loss_tangent, frequency, dielectrics)
     if dielectrics:
-        result = _solve_dielectric(panels, volts, eps_r, rules, tol, ground_z, dielectrics,
-                                   backend, compression, progress)
+        background = complex_permittivity(eps_r, loss_tangent)
+        result = _solve_dielectric(panels, volts, background, rules, tol, ground_z,
+                                   dielectrics, backend, compression, progress)
         result.solver.update({"floating": list(floating),
                               "dielectrics": {b.name: b.eps_r for b in dielectrics}})
+        if lossy:
+            result.frequency_Hz = frequency
+            result.solver["loss_tangents"] = {"background": loss_tangent, **{
+                b.name: b.loss_tangent for b in dielectrics}}
         return reduce_floating(result, floating) if floating else result
     have = available_memory()
     backend, solver = choose_backend(len(panels), backend, solver, have)
@@ -91,7 +102,26 @@ def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto"
                                n_panels=len(panels), solver=settings, timings_s=timings,
                                asymmetry=float(np.max(np.abs(maxwell - maxwell.T))
                                                / np.max(np.abs(np.diag(maxwell)))))
+    if lossy:       # one lossy medium everywhere: C* = (1 - j tan d) C
+        result.loss, result.frequency_Hz = loss_tangent * result.maxwell, frequency
+        result.solver["loss_tangents"] = {"background": loss_tangent}
     return reduce_floating(result, floating) if floating else result
+
+
+def check_loss(loss_tangent, frequency, dielectrics=()):
+    """Is any medium lossy? Then a frequency (Hz, positive) is needed. ModelError for a loss
+    tangent outside [0, 1) or a frequency that is not a positive number."""
+    if not 0 <= loss_tangent < 1:
+        raise ModelError(f"{option('loss_tangent')}: must be at least 0 and below 1, got "
+                         f"{loss_tangent:g}")
+    if frequency is not None and not (0 < frequency < math.inf):
+        raise ModelError(f"{option('frequency')}: must be a positive number of Hz, got "
+                         f"{frequency:g}")
+    lossy = bool(loss_tangent) or any(b.loss_tangent for b in dielectrics)
+    if lossy and frequency is None:
+        raise ModelError(f"a loss tangent is given: {option('frequency')} (Hz) is needed for "
+                         "the conductance")
+    return lossy
 
 
 

@@ -13,6 +13,10 @@ collocated at the panel centroid (Rao, Sarkar & Harrington 1984, IEEE Trans. MTT
 the same jump relation as in Kellogg 1929). The free charge on a closed conductor is
 eps_r (outside) times its total charge; capacitances are free charges per volt.
 
+A lossy medium has the complex permittivity eps_r (1 - j tan d); lambda and the free charge
+become complex, and so does the capacitance C* = C - j G / omega (the same equations with
+complex coefficients: the panel integrals themselves stay real).
+
 Above an infinite grounded plane every charge, free or bound, has its negative mirror image
 (method of images), so both kinds of row take the image contribution: the potential of the
 mirrored panels with opposite sign, and their normal field at the interface test points.
@@ -39,11 +43,15 @@ TEST_POINTS = 6
 
 
 def check_bodies(bodies):
-    """Each body closed, outward-facing and of positive permittivity; raises MeshError."""
+    """Each body closed, outward-facing, of positive permittivity and a loss tangent in [0, 1);
+    raises MeshError or ModelError."""
     for body in bodies:
         if not body.eps_r > 0 or not math.isfinite(body.eps_r):
             raise ModelError(f"{body.name}: relative permittivity must be positive, "
                              f"got {body.eps_r:g}")
+        if not 0 <= body.loss_tangent < 1:
+            raise ModelError(f"{body.name}: loss tangent must be at least 0 and below 1, "
+                             f"got {body.loss_tangent:g}")
         if not closed_conductors(body.panels).all():
             raise MeshError(f"{body.name}: a dielectric body must be a closed surface "
                             "(its mesh has boundary edges)")
@@ -56,13 +64,14 @@ def check_bodies(bodies):
 
 def medium_at(points, bodies, background):
     """Relative permittivity at points (m, 3): that of the smallest body containing each point,
-    else the background."""
-    eps = np.full(len(points), float(background))
+    else the background; complex where a medium is lossy."""
+    lossy = isinstance(background, complex) or any(b.loss_tangent for b in bodies)
+    eps = np.full(len(points), background, complex if lossy else float)
     smallest = np.full(len(points), np.inf)
     for body in bodies:
         inside = winding_numbers(body.panels, points) > 0.5
         take = inside & (body.volume < smallest)
-        eps[take] = body.eps_r
+        eps[take] = body.permittivity
         smallest[take] = body.volume
     return eps
 
@@ -82,14 +91,15 @@ def interfaces(bodies, background, size):
     all_panels = all_body_panels(bodies)
     _coincident(all_panels, all_panels, size, "dielectric bodies")     # refuses mismatched faces
     verts, owner = all_panels.vertices, all_panels.owner
-    eps_in = np.array([bodies[k].eps_r for k in owner], float)
+    eps_in = np.array([bodies[k].permittivity for k in owner])
     # duplicates: the same three corners (in any order) in two bodies
     key = np.round(np.sort(verts, axis=1).reshape(len(verts), 9) / (1e-9 * size)).astype(np.int64)
     _, first, inverse, counts = np.unique(key, axis=0, return_index=True, return_inverse=True,
                                           return_counts=True)
     inverse = inverse.ravel()
     keep = np.ones(len(verts), bool)
-    eps_out = np.empty(len(verts))
+    eps_out = np.empty(len(verts), eps_in.dtype if not isinstance(background, complex)
+                       else complex)
     shared = counts[inverse] == 2
     for k in np.flatnonzero(shared):
         twin = np.flatnonzero(inverse == inverse[k])
@@ -173,11 +183,12 @@ def _uncovered(inter, lam, conductors, size):
     return Panels(inter.vertices[keep], inter.owner[keep], inter.names), lam[keep]
 
 
-def system_bytes(n_panels):
+def system_bytes(n_panels, lossy=False):
     """Peak memory (bytes) of the dense dielectric solve for n_panels conductor and interface
     panels: two n x n arrays, the system matrix and the copy LU factors (the image field of
-    the interface rows needs at most one more matrix's worth before that copy exists)."""
-    return 2 * dense_bytes(n_panels)
+    the interface rows needs at most one more matrix's worth before that copy exists); with a
+    lossy medium both are complex, twice the size."""
+    return (4 if lossy else 2) * dense_bytes(n_panels)
 
 
 @dataclass(frozen=True)
@@ -195,7 +206,7 @@ class DielectricSystem:
     eps_back: np.ndarray
     two_faced: np.ndarray
     bodies: tuple
-    background: float
+    background: float | complex
     ground_z: float | None
 
     @property
@@ -203,13 +214,20 @@ class DielectricSystem:
         return len(self.conductors) + len(self.interfaces)
 
     @property
+    def lossy(self):
+        """A medium with a loss tangent: complex coefficients throughout."""
+        return np.iscomplexobj(self.eps_out) or np.iscomplexobj(self.lam)
+
+    @property
     def nbytes(self):
-        return system_bytes(self.n_panels)
+        return system_bytes(self.n_panels, self.lossy)
 
 
 def plan_dielectrics(conductors, bodies, background=1.0, ground_z=None):
     """Check the bodies and find the interfaces: a DielectricSystem (no assembly yet).
-    ground_z: height (m) of an infinite grounded plane; bodies may stand on it."""
+    background: relative permittivity around the bodies, complex if lossy (see
+    geometry.bodies.complex_permittivity); ground_z: height (m) of an infinite grounded plane;
+    bodies may stand on it."""
     check_bodies(bodies)
     v = conductors.vertices.reshape(-1, 3)
     size = float(np.max(v.max(axis=0) - v.min(axis=0)))
@@ -222,7 +240,7 @@ def plan_dielectrics(conductors, bodies, background=1.0, ground_z=None):
     eps_back = medium_at(conductors.centroids - delta * conductors.normals, bodies, background)
     two_faced = ~_solid(conductors, inter)[conductors.owner] & (eps_out != eps_back)
     return DielectricSystem(conductors, inter, lam, eps_out, eps_back, two_faced, tuple(bodies),
-                            float(background), ground_z)
+                            background, ground_z)
 
 
 def _solid(conductors, inter):
@@ -318,7 +336,7 @@ def free_charge(system, both, total):
 def _normal_field_product(tests, sources, ground_z, total, rows=512):
     """sum_l <n_i . g_l>_i total_l for every test panel i (the interface rows' normal field,
     images subtracted), assembled a block of rows at a time so memory stays bounded."""
-    out = np.empty((len(tests), total.shape[1]))
+    out = np.empty((len(tests), total.shape[1]), total.dtype)
     for start in range(0, len(tests), rows):
         block = slice(start, min(start + rows, len(tests)))
         part = Panels(tests.vertices[block], tests.owner[block], tests.names)
@@ -330,20 +348,27 @@ def _normal_field_product(tests, sources, ground_z, total, rows=512):
 
 def system_result(system, both, total, volts, solver):
     """The CapacitanceResult of the total charge densities `total` (n, conductors);
-    solver: the record of how they were found (backend, solver, residual, ...)."""
+    solver: the record of how they were found (backend, solver, residual, ...).
+
+    With lossy media the charges are complex phasors per volt: the capacitance is their real
+    part and the loss matrix -Im C* (G / omega); charge densities and fields are the real
+    (in-phase) part."""
     conductors = system.conductors
     free = free_charge(system, both, total)
     maxwell = conductors.excitation().T @ free
+    symmetric = 0.5 * (maxwell + maxwell.T)
+    background = system.background
     return CapacitanceResult(
-        names=conductors.names, maxwell=0.5 * (maxwell + maxwell.T), sigma=free,
+        names=conductors.names, maxwell=symmetric.real, sigma=free.real,
         potentials=potential_vector(conductors.names, dict(volts or {})),
         n_panels=len(conductors),
         solver={**solver, "interface_panels": len(system.interfaces),
                 "two_faced_panels": int(system.two_faced.sum()),
-                "relative_permittivity": system.background,
+                "relative_permittivity": background.real,
                 "ground_plane_z_m": system.ground_z},
         asymmetry=float(np.max(np.abs(maxwell - maxwell.T)) / np.max(np.abs(np.diag(maxwell)))),
-        sources=FieldSources(both, total, 1.0, system.bodies, system.background))
+        loss=-symmetric.imag if system.lossy else None,
+        sources=FieldSources(both, total.real, 1.0, system.bodies, background.real))
 
 
 def solve_system(system, volts=None, rules=PairRules()):
@@ -361,6 +386,9 @@ def solve_system(system, volts=None, rules=PairRules()):
     # only like h^0.8 here, measured on a sphere in a dielectric shell).
     rows = matrix[nc:]                      # a view: assembled in place
     _interface_rows(rows, system, both)
+    if system.lossy:                        # complex lambda: the rows' coefficients
+        matrix = matrix.astype(complex)
+        rows = matrix[nc:]
     rows *= -(lam / (2 * math.pi))[:, None]
     rows[np.arange(ni), nc + np.arange(ni)] += 1.0
     rows *= (scale * inter.areas)[:, None]

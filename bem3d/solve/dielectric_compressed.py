@@ -82,6 +82,13 @@ def _conductor_schwarz(operator, areas, nc, max_size):
                                  factor=1.0 / operator.scale)
 
 
+def _real_apply(apply, x):
+    """apply (a real linear map) to x, part by part when x is complex (lossy media)."""
+    if np.iscomplexobj(x):
+        return apply(np.ascontiguousarray(x.real)) + 1j * apply(np.ascontiguousarray(x.imag))
+    return apply(x)
+
+
 def solve_planned(plan, volts=None, tol=1e-7, max_iterations=1000, memory_limit=None):
     """Assemble and solve a DielectricPlan: a CapacitanceResult with timings in its solver
     record. memory_limit: bytes the operators may take together (ResourceError beyond)."""
@@ -99,20 +106,23 @@ def solve_planned(plan, volts=None, tol=1e-7, max_iterations=1000, memory_limit=
     weight = scale * system.interfaces.areas
     n = system.n_panels
 
+    dtype = complex if system.lossy else float
+
     def rows(x):
-        y = np.empty(n)
-        y[:nc] = (single @ x)[:nc]
+        y = np.empty(n, dtype)
+        y[:nc] = _real_apply(single.matvec, x)[:nc]
         if field is not None:
-            y[nc:] = weight * (x[nc:] - lam / (2 * math.pi) * (field @ x))
+            y[nc:] = weight * (x[nc:] - lam / (2 * math.pi) * _real_apply(field.matvec, x))
         return y
 
     def precondition(r):
-        return np.concatenate([schwarz(r[:nc, None])[:, 0], r[nc:] / weight])
+        conductors = _real_apply(lambda v: schwarz(v[:nc, None])[:, 0], r)
+        return np.concatenate([conductors, r[nc:] / weight])
 
-    matrix = LinearOperator((n, n), matvec=rows, dtype=np.float64)
-    inverse = LinearOperator((n, n), matvec=precondition, dtype=np.float64)
+    matrix = LinearOperator((n, n), matvec=rows, dtype=dtype)
+    inverse = LinearOperator((n, n), matvec=precondition, dtype=dtype)
     rhs = system_rhs(system)
-    total = np.zeros_like(rhs)
+    total = np.zeros(rhs.shape, dtype)
     steps = []
     with threadpool_limits(limits=1, user_api="blas"):
         for j in range(rhs.shape[1]):

@@ -93,8 +93,9 @@ def case_keys(model, case, solver, tol, memo):
         "length_unit": model.length_unit,
         "relative_permittivity": model.relative_permittivity,
         "ground_plane_z_m": model.ground_z_m,
-        "dielectrics": [[Path(m).name, _file_digest(m, memo), eps]
-                        for m, eps in model.dielectrics],
+        "dielectrics": [[Path(m).name, _file_digest(m, memo), eps, loss]
+                        for m, eps, loss in model.dielectrics],
+        "medium": model.medium,
         "steps": [[m.kind, list(m.names), m.axis, m.pivot, v] for m, v in case.steps],
         "solver": solver, "tol": tol, "rules": PairRules().as_dict()})
     return solve, _digest({"solve": solve, "volts": model.volts, "floating": model.floating,

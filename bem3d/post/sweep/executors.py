@@ -16,10 +16,10 @@ from bem3d.operators.rules import PairRules
 from bem3d.solve.conductors import solve_panels
 
 
-def solve_task(panels, eps_r, ground_z, bodies, solver, tol, threads):
+def solve_task(panels, medium, ground_z, bodies, solver, tol, threads):
     """One case's CapacitanceResult at 0 V, every conductor a terminal, with Numba and BLAS
-    limited to `threads` threads. ground_z: grounded plane height (m) or None; bodies:
-    dielectric.DielectricBody list (eps_r is then the background's).
+    limited to `threads` threads. medium: the background and frequency (Model.medium);
+    ground_z: grounded plane height (m) or None; bodies: dielectric.DielectricBody list.
 
     The caller applies potentials and floating conductors: the full matrix does not change."""
     before = numba.get_num_threads()
@@ -27,8 +27,8 @@ def solve_task(panels, eps_r, ground_z, bodies, solver, tol, threads):
     start = time.perf_counter()
     try:
         with threadpool_limits(limits=threads):
-            result = solve_panels(panels, None, eps_r, PairRules(), solver, tol,
-                                  ground_z=ground_z, dielectrics=bodies)
+            result = solve_panels(panels, None, rules=PairRules(), solver=solver, tol=tol,
+                                  ground_z=ground_z, dielectrics=bodies, **medium)
     finally:
         numba.set_num_threads(before)
     result.timings_s["total"] = time.perf_counter() - start

@@ -169,7 +169,7 @@ def run_sweep(request: SweepRequest, on_event=None) -> SweepOutcome:
                     if cached is not None:
                         finish(case, model, keys, panels, warnings, cached, "cached")
                         continue
-                    future = runner.submit(solve_task, panels, model.relative_permittivity,
+                    future = runner.submit(solve_task, panels, model.medium,
                                            model.ground_z_m, bodies, request.solver,
                                            request.tol, threads)
                 except Exception as err:                 # e.g. a moved conductor touches
