@@ -16,16 +16,21 @@ class _Corrupt(ValueError):
     """A Gmsh block promising more than the rest of its file holds."""
 
 
+def _mesh_format(data):
+    """(version, binary, size_t) of a Gmsh file's $MeshFormat line, or None if it has none."""
+    fmt = re.match(rb"\s*\$MeshFormat\s+(\S+)\s+(\d+)\s+(\d+)", data)
+    try:
+        return float(fmt[1]), fmt[2] == b"1", int(fmt[3])
+    except (TypeError, ValueError):
+        return None
+
+
 def gmsh_counts(data):
     """[(what, count)] of the $Nodes and $Elements headers of a Gmsh file (2.2 or 4.x)."""
-    fmt = re.match(rb"\s*\$MeshFormat\s+(\S+)\s+(\d+)\s+(\d+)", data)
+    fmt = _mesh_format(data)
     if fmt is None:
         return []
-    try:
-        version = float(fmt[1])
-    except ValueError:
-        return []
-    binary, size_t = fmt[2] == b"1", int(fmt[3])
+    version, binary, size_t = fmt
     counts = []
     for section, what in ((rb"\$Nodes\r?\n", "nodes"), (rb"\$Elements\r?\n", "elements")):
         found = re.search(section, data)
@@ -50,11 +55,10 @@ def check_gmsh(path, data):
     negative indices that wrap round to the last nodes), a $Nodes header promising more nodes
     than its blocks hold (the rest are left uninitialised), and node numbers too large for
     memory."""
-    fmt = re.match(rb"\s*\$MeshFormat\s+(\S+)\s+(\d+)\s+(\d+)", data)
-    try:
-        version, binary, size_t = float(fmt[1]), fmt[2] == b"1", int(fmt[3])
-    except (TypeError, ValueError):
+    fmt = _mesh_format(data)
+    if fmt is None:
         return
+    version, binary, size_t = fmt
     if binary and version < 4:
         return                               # meshio requires its nodes numbered 1..N
     try:
