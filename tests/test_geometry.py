@@ -1,7 +1,9 @@
-"""Tests for bem3d.geometry: the checks of panels before a solve (topology, quality, contacts
-between conductors, triangle distances), on panels built in memory.
+"""Tests for bem3d.geometry: the checks of panels before a solve (errors, accuracy warnings,
+conductors that touch or come close, the mesh report) and triangle distances, on panels built in
+memory.
 
-Every expected number is a closed form or a rule of thumb noted beside it.
+Every expected number is a closed form, a rule of thumb or brute-force sampling, noted beside
+it.
 """
 
 import numpy as np

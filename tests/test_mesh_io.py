@@ -16,8 +16,8 @@ from bem3d.geometry.panels import Panels
 from bem3d.geometry.quality import mesh_summary
 from bem3d.mesh_io.read import read_conductors
 
-# The corner tetrahedron's surface: three right triangles of legs 1 (area 1/2 each) and an equilateral triangle of
-# side sqrt(2) (area sqrt(3)/4 * 2), closed form.
+# The corner tetrahedron's surface (conftest): three right triangles of legs 1 (area 1/2 each)
+# and an equilateral triangle of side sqrt(2) (area sqrt(3)/4 * 2), closed form.
 TET_AREA = 1.5 + math.sqrt(3) / 2
 
 # meshio's writers warn about things our tiny meshes do not need (missing tags, int64 casts).
