@@ -14,9 +14,10 @@ from bem3d.base.resources import available_memory, check_panel_count, peak_memor
 from bem3d.export.convergence import write_convergence
 from bem3d.export.outputs import output_names
 from bem3d.geometry.panels import Panels
+from bem3d.geometry.quality import mesh_summary
 from bem3d.geometry.refine import CREASE_DEGREES
 from bem3d.mesh_io.bodies import read_bodies
-from bem3d.mesh_io.read import mesh_summary, read_conductors
+from bem3d.mesh_io.read import read_conductors
 from bem3d.model import Model, build_model
 from bem3d.operators.hmatrix import Compression
 from bem3d.post.convergence import converge_model

@@ -8,6 +8,10 @@ from bem3d.geometry.panels import Panels
 from bem3d.operators.quadrature import map_points, triangle_rule
 from bem3d.solve.conductors import solve_panels
 
+# Corner tetrahedron (0, e_x, e_y, e_z), faces oriented outward.
+TET_POINTS = np.array([[0, 0, 0], [1, 0, 0], [0, 1, 0], [0, 0, 1]], dtype=float)
+TET_TRIS = np.array([[0, 2, 1], [0, 1, 3], [0, 3, 2], [1, 2, 3]])
+
 
 def make_panels(*parts):
     """Panels from (name, (points, triangles)) pairs, one conductor each, in the given order."""

@@ -20,8 +20,8 @@ from conftest import make_panels
 from bem3d._cli import converge as converge_command
 from bem3d.geometry import shapes
 from bem3d.geometry.bodies import DielectricBody
+from bem3d.geometry.quality import mesh_summary
 from bem3d.geometry.refine import subdivide
-from bem3d.mesh_io.read import mesh_summary
 from bem3d.post.convergence import converge, richardson
 
 SQUARE_PLATE = 0.3667892 * 4 * np.pi * ref.EPS0         # F per metre of side (Read 1997)

@@ -85,3 +85,8 @@ class Panels:
         if rotation is not None:
             v = v @ np.asarray(rotation).T
         return Panels(v + np.asarray(shift), self.owner, self.names)
+
+
+def edge_lengths(v):
+    """(n, 3) lengths (m) of the edges of panels v (n, 3, 3); edge m joins corners m and m+1."""
+    return np.linalg.norm(v[:, [1, 2, 0]] - v, axis=2)

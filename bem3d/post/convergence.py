@@ -17,9 +17,10 @@ from dataclasses import dataclass
 import numpy as np
 
 from bem3d.base.units import prefix_for
+from bem3d.geometry.quality import check_geometry
 from bem3d.geometry.refine import CREASE_DEGREES, subdivide
 from bem3d.mesh_io.bodies import read_bodies
-from bem3d.mesh_io.read import check_geometry, read_conductors
+from bem3d.mesh_io.read import read_conductors
 from bem3d.operators.rules import PairRules
 from bem3d.solve.conductors import solve_panels
 

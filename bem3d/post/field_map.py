@@ -10,7 +10,7 @@ import numpy as np
 
 from bem3d.base.constants import EPS0
 from bem3d.base.errors import ModelError, ResourceError, option
-from bem3d.mesh_io.read import closed_conductors
+from bem3d.geometry.topology import closed_conductors
 from bem3d.operators.points import evaluate
 from bem3d.post.energy import energy_balance
 from bem3d.post.fields import conductor_forces, peak_fields, surface_fields

@@ -13,8 +13,9 @@ import numpy as np
 from bem3d.base.errors import MeshError, ModelError
 from bem3d.base.version import __version__
 from bem3d.geometry.moves import conductor_indices, move_conductors
+from bem3d.geometry.quality import check_geometry
 from bem3d.mesh_io.bodies import read_bodies
-from bem3d.mesh_io.read import check_geometry, read_conductors
+from bem3d.mesh_io.read import read_conductors
 from bem3d.operators.rules import PairRules
 from bem3d.post.convergence import mesh_sources
 from bem3d.results import potential_vector
