@@ -5,7 +5,7 @@ from pathlib import Path
 import meshio
 import numpy as np
 
-from bem3d.demo import write_demo_mesh
+from bem3d.demo.sensor_head import write_demo_mesh
 from bem3d.mesh_io.read import read_conductors
 
 SHIPPED = Path(__file__).resolve().parent.parent / "meshes" / "sensor_head.msh"

@@ -1,4 +1,4 @@
-"""Regenerate the shipped demo mesh meshes/sensor_head.msh (the design is in bem3d/demo.py).
+"""Regenerate the shipped demo mesh meshes/sensor_head.msh (the design is in bem3d/demo/sensor_head.py).
 
     python tools/make_demo.py [--out meshes/sensor_head.msh]
 """
@@ -6,7 +6,7 @@
 import argparse
 from pathlib import Path
 
-from bem3d.demo import conductors, write_demo_mesh
+from bem3d.demo.sensor_head import conductors, write_demo_mesh
 
 DEFAULT_OUT = Path(__file__).resolve().parent.parent / "meshes" / "sensor_head.msh"
 

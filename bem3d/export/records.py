@@ -70,15 +70,18 @@ def write_spice(result, target, subckt="bem3d_capacitance"):
     lines = [f"* mutual capacitances from bem3d {__version__}; {result.n_panels} panels",
              "* REF is the reference at infinity (or ground); tie it to your circuit ground."]
     if conductance is not None:
-        lines.append(f"* the resistors give the dielectric loss at {result.frequency_Hz:.6g} Hz "
-                     "only (G grows in proportion to frequency for a constant loss tangent)")
+        lines += [f"* the resistors give the dielectric loss at {result.frequency_Hz:.6g} Hz "
+                  "only (G grows in proportion to frequency for a constant loss tangent);",
+                  "* a negative one is no error: the loss is positive for the network as a "
+                  "whole, not resistor by resistor"]
+        smallest = 1e-9 * float(np.abs(conductance).max())
     lines.append(f".SUBCKT {spice_node(subckt)} " + " ".join(nodes) + " REF")
     for i, a in enumerate(nodes):
         ends = [(j, nodes[j]) for j in range(i + 1, len(nodes))] + [(i, "REF")]
         for j, b in ends:
             if mutual[i, j] > 0:
                 lines.append(f"C_{a}_{b} {a} {b} {mutual[i, j]:.6e}")
-            if conductance is not None and conductance[i, j] > 0:
+            if conductance is not None and abs(conductance[i, j]) > smallest:
                 lines.append(f"R_{a}_{b} {a} {b} {1.0 / conductance[i, j]:.6e}")
     lines.append(f".ENDS {spice_node(subckt)}")
     write_text(target, "\n".join(lines) + "\n")

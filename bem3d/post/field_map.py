@@ -227,10 +227,11 @@ class _Evaluator:
             close()
 
     def eps(self, points):
-        """Permittivity (F/m) at points (m, 3)."""
+        """Permittivity (F/m) at points (m, 3): the real part eps' of a lossy medium's, the one
+        that stores energy (the loss eps'' dissipates it)."""
         if not self.source.bodies:
             return np.full(len(points), EPS0 * self.source.background)
-        return EPS0 * medium_at(points, self.source.bodies, self.source.background)
+        return EPS0 * medium_at(points, self.source.bodies, self.source.background).real
 
 
 @dataclass

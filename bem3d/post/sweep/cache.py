@@ -12,10 +12,12 @@ from bem3d.results import CapacitanceResult, potential_vector, reduce_floating
 
 def store_cached(path, result):
     """Save the potential-independent part of a result (matrices, panel charges) atomically."""
+    loss = {} if result.loss is None else {"loss": result.loss,
+                                           "frequency_Hz": result.frequency_Hz}
     with atomic_path(path) as tmp, open(tmp, "wb") as fh:
         np.savez(fh, maxwell=result.maxwell, sigma=result.sigma, names=np.array(result.names),
                  n_panels=result.n_panels, asymmetry=result.asymmetry,
-                 solver=json.dumps(result.solver), timings=json.dumps(result.timings_s))
+                 solver=json.dumps(result.solver), timings=json.dumps(result.timings_s), **loss)
 
 
 def load_cached(path, panels):
@@ -26,7 +28,9 @@ def load_cached(path, panels):
                 names=tuple(str(n) for n in data["names"]), maxwell=data["maxwell"],
                 sigma=data["sigma"], potentials=np.zeros(len(data["names"])),
                 n_panels=int(data["n_panels"]), solver=json.loads(str(data["solver"])),
-                timings_s=json.loads(str(data["timings"])), asymmetry=float(data["asymmetry"]))
+                timings_s=json.loads(str(data["timings"])), asymmetry=float(data["asymmetry"]),
+                loss=data["loss"] if "loss" in data.files else None,
+                frequency_Hz=float(data["frequency_Hz"]) if "loss" in data.files else None)
     except (OSError, KeyError, ValueError):
         return None
     if result.names != panels.names or result.n_panels != len(panels):

@@ -18,6 +18,9 @@ def case_record(case, keys, result=None, error=None):
                       potentials_V=result.potentials.tolist(),
                       floating_potentials_V=result.floating, energy_J=result.energy,
                       panels=result.n_panels, solve_seconds=result.timings_s.get("total", 0.0))
+        if result.loss is not None:
+            record.update(frequency_Hz=result.frequency_Hz,
+                          conductance_S=result.conductance.tolist())
     return record
 
 

@@ -7,10 +7,7 @@ tools/make_demo.py writes meshes/sensor_head.msh from it byte for byte.
 """
 
 
-import meshio
-import numpy as np
-
-from bem3d.base.files import atomic_path
+from bem3d.demo.gmsh_file import write_gmsh
 from bem3d.geometry import shapes
 
 LENGTH_UNIT = "mm"
@@ -50,34 +47,6 @@ def conductors():
     return [(name, p, t) for name, (p, t) in pads + [("guard", guard), ("lid", lid)]]
 
 
-def build_mesh(parts):
-    """A meshio.Mesh with one triangle block per conductor; conductor k is surface entity k + 1
-    and physical group k + 1, named after it."""
-    points, cells, node_tags, offset = [], [], [], 0
-    for k, (_, p, t) in enumerate(parts):
-        points.append(p)
-        cells.append(("triangle", t + offset))
-        # Gmsh 4.1 keeps physical groups on entities, so every node needs its (dim, entity) pair.
-        node_tags.append(np.tile([2, k + 1], (len(p), 1)))
-        offset += len(p)
-    tags = [np.full(len(t), k + 1, dtype=np.int64) for k, (_, _, t) in enumerate(parts)]
-    return meshio.Mesh(
-        np.concatenate(points), cells,
-        point_data={"gmsh:dim_tags": np.concatenate(node_tags)},
-        cell_data={"gmsh:physical": tags, "gmsh:geometrical": [tag.copy() for tag in tags]},
-        field_data={name: np.array([k + 1, 2]) for k, (name, _, _) in enumerate(parts)},
-    )
-
-
 def write_demo_mesh(out):
-    """Write the demo as ASCII Gmsh 4.1 to out atomically, once it reads back with its names and tags."""
-    mesh = build_mesh(conductors())
-    with atomic_path(out) as tmp:
-        meshio.write(tmp, mesh, file_format="gmsh", binary=False)
-        back = meshio.read(tmp, file_format="gmsh")
-        names = {name: int(v[0]) for name, v in back.field_data.items()}
-        expected = {name: int(v[0]) for name, v in mesh.field_data.items()}
-        read_tags = np.concatenate(back.cell_data["gmsh:physical"])
-        if names != expected or not np.array_equal(read_tags,
-                                                   np.concatenate(mesh.cell_data["gmsh:physical"])):
-            raise RuntimeError(f"{tmp} did not read back with the physical groups written")
+    """Write the demo as ASCII Gmsh 4.1 to out atomically."""
+    write_gmsh(conductors(), out)
