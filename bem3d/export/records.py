@@ -1,12 +1,12 @@
 """Result records: result.json, capacitance.csv, the SPICE subcircuit and point tables."""
 
 import json
-import re
 
 import numpy as np
 
 from bem3d.base.files import write_text
 from bem3d.base.version import __version__
+from bem3d.export.names import csv_cell, csv_text, spice_node, spice_nodes
 
 CAUTION = ("Engineering estimate from a surface discretisation. Stored field energy in "
            "high-voltage structures can injure; clearances and safety follow the applicable "
@@ -35,36 +35,38 @@ def result_record(result, extra=None):
 
 
 def write_json(result, target, extra=None):
-    write_text(target, json.dumps(result_record(result, extra), indent=2) + "\n")
+    # allow_nan=False: a NaN would make the file invalid JSON; require_finite stops it earlier
+    write_text(target, json.dumps(result_record(result, extra), indent=2, allow_nan=False)
+               + "\n")
 
 
 def write_csv(result, target):
     """Both matrices in one table: columns matrix, conductor, then one column per conductor (F)."""
-    rows = ["matrix,conductor," + ",".join(result.names)]
+    names = [csv_cell(n) for n in result.names]
+    rows = [["matrix", "conductor", *names]]
     for label, matrix in [("maxwell_F", result.maxwell), ("mutual_F", result.mutual)]:
-        for name, row in zip(result.names, matrix):
-            rows.append(f"{label},{name}," + ",".join(f"{v:.9e}" for v in row))
-    write_text(target, "\n".join(rows) + "\n")
-
-
-def spice_node(name):
-    """A conductor name made safe as a SPICE node name."""
-    return re.sub(r"[^A-Za-z0-9_]", "_", name)
+        for name, row in zip(names, matrix):
+            rows.append([label, name, *(f"{v:.9e}" for v in row)])
+    write_text(target, csv_text(rows))
 
 
 def write_spice(result, target, subckt="bem3d_capacitance"):
-    """A .SUBCKT of the mutual capacitances; port REF is the far/ground reference."""
-    nodes = [spice_node(n) for n in result.names]
+    """A .SUBCKT of the mutual capacitances; port REF is the far/ground reference. Nodes are
+    the conductor names made safe (names.spice_nodes; a comment lists those that differ);
+    capacitors are numbered by conductor, C_i_j, so no two get the same name."""
+    nodes = spice_nodes(result.names)
     mutual = result.mutual
     lines = [f"* mutual capacitances from bem3d {__version__}; {result.n_panels} panels",
              "* REF is the reference at infinity (or ground); tie it to your circuit ground.",
-             f".SUBCKT {spice_node(subckt)} " + " ".join(nodes) + " REF"]
+             f".SUBCKT {spice_node(subckt)} " + " ".join(nodes) + " REF",
+             *(f"* node {node} is the conductor {json.dumps(name)}"
+               for node, name in zip(nodes, result.names) if node != name)]
     for i, a in enumerate(nodes):
         for j in range(i + 1, len(nodes)):
             if mutual[i, j] > 0:
-                lines.append(f"C_{a}_{nodes[j]} {a} {nodes[j]} {mutual[i, j]:.6e}")
+                lines.append(f"C_{i + 1}_{j + 1} {a} {nodes[j]} {mutual[i, j]:.6e}")
         if mutual[i, i] > 0:
-            lines.append(f"C_{a}_REF {a} REF {mutual[i, i]:.6e}")
+            lines.append(f"C_{i + 1}_REF {a} REF {mutual[i, i]:.6e}")
     lines.append(f".ENDS {spice_node(subckt)}")
     write_text(target, "\n".join(lines) + "\n")
 
@@ -81,5 +83,5 @@ def write_point_table(points, columns, target):
             values = values[:, None]
         data.append(values)
     table = np.hstack(data)
-    lines = [",".join(names)] + [",".join(f"{v:.9e}" for v in row) for row in table]
-    write_text(target, "\n".join(lines) + "\n")
+    write_text(target, csv_text([[csv_cell(n) for n in names]]
+                                + [[f"{v:.9e}" for v in row] for row in table]))

@@ -44,6 +44,7 @@ from scipy.spatial import cKDTree
 
 from bem3d.base.constants import LENGTH_UNITS
 from bem3d.base.errors import MeshError, ModelError
+from bem3d.base.files import check_mesh_file
 from bem3d.base.resources import check_panel_count, require_memory
 from bem3d.geometry.panels import Panels
 
@@ -209,10 +210,7 @@ def _read_file(path, split, scale, max_panels=None):
     """One file: points (m), triangles (n, 3), their groups, group names, warnings.
 
     With split=False every triangle is in group 0 (the caller names the conductor)."""
-    if not path.exists():
-        raise MeshError(f"{path}: file not found")
-    if not path.is_file():
-        raise MeshError(f"{path}: not a file")
+    check_mesh_file(path)
     file_format, file_warnings = _inspect(path)
     try:
         # meshio reports a failing reader on stdout and stderr besides raising, and the STL

@@ -10,7 +10,8 @@ from pathlib import Path
 
 import numpy as np
 
-from bem3d.base.errors import MeshError, ModelError
+from bem3d.base.errors import ModelError
+from bem3d.base.files import file_digest
 from bem3d.base.version import __version__
 from bem3d.geometry.moves import conductor_indices, move_conductors
 from bem3d.mesh_io.bodies import read_bodies
@@ -77,10 +78,7 @@ def _file_digest(path, memo):
     """SHA-256 of a file's bytes, computed once per sweep."""
     key = str(Path(path).resolve())
     if key not in memo:
-        try:
-            memo[key] = hashlib.sha256(Path(path).read_bytes()).hexdigest()
-        except OSError as err:
-            raise MeshError(f"{path}: cannot read ({err.strerror or err})") from None
+        memo[key] = file_digest(path, hashlib.sha256())
     return memo[key]
 
 
