@@ -32,10 +32,11 @@ def csv_cell(text):
 
 
 def csv_text(rows):
-    """CSV of rows (lists of str cells) quoted per RFC 4180: a cell holding a comma, quote or
-    line break is quoted, quotes doubled. Pass name cells through csv_cell first."""
+    """CSV of rows (lists of str cells) per RFC 4180: CRLF line ends, a cell holding a comma,
+    quote, CR or LF quoted, quotes doubled. Pass name cells through csv_cell first."""
     out = io.StringIO()
-    csv.writer(out, lineterminator="\n").writerows(rows)
+    # the csv module quotes only the characters of its line terminator: CRLF covers both
+    csv.writer(out, lineterminator="\r\n").writerows(rows)
     return out.getvalue()
 
 
