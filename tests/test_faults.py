@@ -322,3 +322,14 @@ def test_a_later_failure_never_deletes_a_finished_case(tmp_path, capsys, monkeyp
     assert code == exits.CASES_FAILED and "damaged cache entry" in err
     assert (case / "result.json").read_bytes() == finished
     assert json.loads((case / "case.json").read_text())["status"] == "failed"
+
+
+@pytest.mark.parametrize("values", ["0:1:100000000", "0:1:400,0:1:400"])
+def test_huge_sweeps_are_refused_before_allocation(tmp_path, capsys, values):
+    a = write_sphere(tmp_path / "a.obj")
+    b = write_sphere(tmp_path / "b.obj", (3.0, 0.0, 0.0))
+    moves = [arg for axis, v in zip("xy", values.split(","))
+             for arg in ("--translate", f"b:{axis}={v}")]
+    code, _, err = sweep([a, b, *moves, "--out", tmp_path / "s"], capsys)
+    one_line(code, err, exits.BAD_INPUT, "more than the 100,000")
+    assert not (tmp_path / "s").exists()

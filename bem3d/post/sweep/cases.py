@@ -4,6 +4,7 @@ import glob
 import hashlib
 import itertools
 import json
+import math
 import re
 from dataclasses import dataclass
 from pathlib import Path
@@ -18,6 +19,7 @@ from bem3d.mesh_io.bodies import read_bodies
 from bem3d.mesh_io.read import check_geometry, read_conductors
 from bem3d.operators.rules import PairRules
 from bem3d.post.convergence import mesh_sources
+from bem3d.post.sweep.syntax import MAX_CASES
 from bem3d.results import potential_vector
 
 
@@ -46,6 +48,10 @@ def build_cases(moves, sources, unit="m"):
     if sources:
         return [Case(i, f"{i:04d}_{_safe(Path(s).stem)}", {"input": str(s)}, source=str(s))
                 for i, s in enumerate(sources)]
+    total = math.prod(len(m.values) for m in moves)
+    if total > MAX_CASES:
+        raise ModelError(f"the variations make {total:,} cases, more than the {MAX_CASES:,} a "
+                         "sweep may have")
     columns = [m.column(unit) for m in moves]
     if len(set(columns)) < len(columns):
         raise ModelError("the same variation is given twice")
