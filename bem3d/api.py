@@ -11,7 +11,7 @@ from bem3d.base.constants import LENGTH_UNITS
 from bem3d.base.errors import ModelError, option
 from bem3d.base.files import check_output_folder
 from bem3d.base.resources import available_memory, check_panel_count, peak_memory
-from bem3d.export.convergence import write_convergence
+from bem3d.export.convergence import CONVERGENCE_FILES, write_convergence
 from bem3d.export.outputs import output_names
 from bem3d.geometry.panels import Panels
 from bem3d.geometry.quality import mesh_summary
@@ -239,6 +239,8 @@ def converge(inputs, *, refinements=2, flat=False, crease_angle=CREASE_DEGREES, 
     model = model_of(inputs, units=units, volts=volts, eps_r=eps_r, ground_plane=ground_plane,
                      floating=floating, dielectrics=dielectrics, loss_tangent=loss_tangent,
                      frequency=frequency)
+    if out is not None:           # the study's files are replaced; an input never is
+        check_output_folder(out, model.files(), CONVERGENCE_FILES, force=True)
     conv = converge_model(model, refinements, not flat, crease_angle, solver, tol,
                           progress=progress)
     if out is not None:

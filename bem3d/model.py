@@ -31,6 +31,7 @@ except ModuleNotFoundError:          # Python 3.10
 
 from bem3d.base.constants import LENGTH_UNITS
 from bem3d.base.errors import ModelError, option
+from bem3d.base.files import read_regular
 
 #: Accepted relative permittivities: no passive medium has a static value below vacuum's 1, and
 #: the largest reported for bulk ceramics are of order 1e5 (common practice, no source).
@@ -44,6 +45,8 @@ _TOP_KEYS = {"length_unit", "relative_permittivity", "meshes", "volts", "output"
              "ground_plane_z", "floating", "dielectric", "loss_tangent", "frequency_Hz"}
 _BODY_KEYS = {"mesh", "relative_permittivity", "loss_tangent"}
 _OUTPUT_KEYS = {"folder", "spice_name"}
+#: A model file lists a few meshes and settings; anything near this size is not one.
+MAX_MODEL_BYTES = 1 << 20
 
 
 @dataclass
@@ -161,13 +164,13 @@ def load_model(path):
     """Read a TOML model file; relative paths in it are taken from the file's folder."""
     path = Path(path)
     try:
-        data = tomllib.loads(path.read_bytes().decode("utf-8"))
-    except FileNotFoundError:
-        raise ModelError(f"{path}: model file not found") from None
-    except (OSError, UnicodeDecodeError) as err:
+        data = tomllib.loads(read_regular(path, MAX_MODEL_BYTES, "model file").decode("utf-8"))
+    except UnicodeDecodeError as err:
         raise ModelError(f"{path}: cannot read model file ({err})") from None
     except tomllib.TOMLDecodeError as err:
         raise ModelError(f"{path}: malformed TOML ({err})") from None
+    except RecursionError:               # the parser recurses once per nested array or table
+        raise ModelError(f"{path}: malformed TOML (arrays or tables nested too deeply)") from None
     unknown = set(data) - _TOP_KEYS
     if unknown:
         raise ModelError(f"{path}: unknown key(s) {', '.join(sorted(unknown))} "

@@ -36,7 +36,7 @@ from hypothesis import strategies as st
 
 from bem3d._cli.main import main
 from bem3d.base.constants import EPS0, LENGTH_UNITS
-from bem3d.export.records import spice_node
+from bem3d.export.names import spice_node
 from bem3d.geometry import shapes
 from bem3d.mesh_io.preflight import MIN_ITEM_BYTES
 from bem3d.mesh_io.read import MAX_COORDINATE_M, MIN_MODEL_SIZE_M, read_conductors

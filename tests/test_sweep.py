@@ -247,7 +247,7 @@ def test_broken_case_is_reported_and_the_others_finish(plates, tmp_path, capsys)
     # -0.1 mm puts the top plate onto the bottom one: those conductors touch
     code = command(parse(*plates, "--units", "mm", "--translate", "top:z=0.2,-0.1,0.4",
                          "--workers", 1, "--out", out))
-    assert code == 1
+    assert code == 4          # exits.CASES_FAILED
     rows = summary(out)
     assert [r["status"] for r in rows] == ["ok", "failed", "ok"]
     assert "touch" in rows[1]["error"] and rows[1]["mutual_F:bottom:top"] == ""
@@ -265,7 +265,7 @@ def test_each_file_is_a_case_and_a_bad_file_fails_alone(plates, tmp_path, capsys
     out = tmp_path / "each"
     code = command(parse("--each", cases / "*.vtu", cases / "pair.toml", "--workers", 1,
                          "--out", out))
-    assert code == 1
+    assert code == 4          # exits.CASES_FAILED
     rows = {r["input"].rsplit("/", 1)[-1]: r for r in summary(out)}
     assert rows["broken.vtu"]["status"] == "failed" and "cannot read" in rows["broken.vtu"]["error"]
     # isolated sphere 4 pi eps0 a (closed form); 288 flat panels are 1.4% low

@@ -37,8 +37,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 from bench import BEMPP_SCRIPT  # noqa: E402
 
-from bem3d.demo import sensor_head as demo
 from bem3d.base.constants import EPS0
+from bem3d.demo import sensor_head as demo
 from bem3d.geometry import shapes
 
 SPHERE_EXACT = 4 * math.pi * EPS0          # unit sphere, F

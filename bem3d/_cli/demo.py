@@ -4,6 +4,7 @@ keypad on a board over a ground layer under a cover."""
 from pathlib import Path
 
 from bem3d import api
+from bem3d._cli import exits
 from bem3d._cli.extract import print_warnings
 from bem3d._cli.field import print_field_summary
 from bem3d.base.files import check_output_folder, write_text
@@ -87,7 +88,7 @@ def run_keypad(folder, force):
                                                     for r in [TOUCH_COLUMNS] + rows))
     print(f"caution: {CAUTION}")
     print(f"demo files are in {folder.resolve()} (the sweep's summary in finger_sweep)")
-    return 0 if not sweep.failed else 1
+    return exits.CASES_FAILED if sweep.failed else exits.OK
 
 
 TOUCH_COLUMNS = ("finger_gap_mm", "C_key_1_F", "dC_key_1_F", "dC_key_2_F", "dG_key_1_S")

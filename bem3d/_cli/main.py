@@ -1,14 +1,14 @@
-"""Command line: a thin shell over the Python API. Bad input ends in one line and exit code 2."""
+"""Command line: a thin shell over the Python API, and the one place where failures become a
+line on stderr and an exit code (see exits)."""
 
 import argparse
 import sys
 
-from bem3d._cli import check_mesh, converge, demo, extract, field, sweep
-from bem3d.base.errors import Bem3dError
+from bem3d._cli import check_mesh, converge, demo, exits, extract, field, sweep
+from bem3d._cli.terminal import safe_streams
 from bem3d.base.version import __version__
+from bem3d.export.names import terminal_text
 
-EXIT_BAD_INPUT = 2
-EXIT_INTERRUPTED = 130
 #: API keywords whose flag is not simply --keyword-with-dashes.
 FLAGS = {"dielectrics": "--dielectric", "slices": "--slice"}
 
@@ -22,7 +22,7 @@ class _Parser(argparse.ArgumentParser):
     """argparse with bem3d's one-line error and exit code 2 (the usage stays in --help)."""
 
     def error(self, message):
-        self.exit(EXIT_BAD_INPUT, f"bem3d: error: {self.prog}: {message}\n")
+        self.exit(exits.BAD_INPUT, f"bem3d: error: {self.prog}: {terminal_text(message)}\n")
 
 
 def _parser():
@@ -39,16 +39,21 @@ def _parser():
 
 def main(argv=None):
     args = _parser().parse_args(argv)
-    try:
-        return args.run(args)
-    except Bem3dError as err:
-        if args.debug:
-            raise
-        print(f"bem3d: error: {err.render(flag)}", file=sys.stderr)
-        return EXIT_BAD_INPUT
-    except KeyboardInterrupt:
-        print("bem3d: interrupted; no partial result was written", file=sys.stderr)
-        return EXIT_INTERRUPTED
+    with safe_streams():
+        try:
+            return args.run(args)
+        except KeyboardInterrupt:
+            if args.debug:
+                raise
+            print("bem3d: interrupted; no partial result was written", file=sys.stderr)
+            return exits.INTERRUPTED
+        except Exception as err:         # noqa: BLE001 - sorted by exits.classify
+            failure = exits.classify(err, flag)
+            if failure is None or args.debug:
+                raise
+            code, message = failure
+            print(f"bem3d: error: {terminal_text(message)}", file=sys.stderr)
+            return code
 
 
 if __name__ == "__main__":

@@ -6,12 +6,9 @@ import sys
 from pathlib import Path
 
 from bem3d import api
+from bem3d._cli import exits
 from bem3d._cli.options import add_model_options
 from bem3d.model import parse_dielectrics, parse_volts
-
-#: Largest exit code used for "this many cases failed" (126 and above mean other things to shells).
-MAX_EXIT = 125
-EXIT_INTERRUPTED = 130
 
 EXAMPLES = """\
 values: a list 0.2,0.5,1 or a range START:STOP:COUNT (COUNT values, both ends included).
@@ -78,7 +75,15 @@ class _Progress:
         if self.json_lines:
             print(json.dumps(event), flush=True)
             return
-        {"start": self.start, "case": self.case, "done": self.done}[event["event"]](event)
+        {"start": self.start, "case": self.case, "warning": self.warning,
+         "done": self.done}[event["event"]](event)
+
+    def warning(self, fields):
+        text = f"warning: {fields['text']}"
+        if self.bar is not None:
+            self.bar.write(text, file=sys.stderr)
+        else:
+            print(text, file=sys.stderr)
 
     def start(self, fields):
         print(f"sweep: {fields['cases']} cases, {fields['skipped']} finished before, "
@@ -113,8 +118,8 @@ class _Progress:
 
 
 def run(args):
-    """Run the parsed 'sweep' command; exit code = number of failed cases (at most MAX_EXIT),
-    EXIT_INTERRUPTED after Ctrl-C. Bad input raises Bem3dError."""
+    """Run the parsed 'sweep' command: exit code 0, exits.CASES_FAILED if any case failed,
+    exits.INTERRUPTED after Ctrl-C. Bad input raises Bem3dError."""
     outcome = api.sweep(args.inputs, moves=args.moves, each=args.each, entries=args.entries,
                         units=args.units, volts=parse_volts(args.volts), eps_r=args.eps_r,
                         ground_plane=args.ground_plane, floating=args.floating,
@@ -124,4 +129,6 @@ def run(args):
                         tol=args.tol, workers=args.workers, threads=args.threads,
                         scheduler=args.scheduler, cache=args.cache,
                         out=args.out or "bem3d_sweep", on_event=_Progress(args.json_lines))
-    return EXIT_INTERRUPTED if outcome.interrupted else min(outcome.failed, MAX_EXIT)
+    if outcome.interrupted:
+        return exits.INTERRUPTED
+    return exits.CASES_FAILED if outcome.failed else exits.OK

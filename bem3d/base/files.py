@@ -1,34 +1,65 @@
-"""Files written safely: atomic single files, and a run's outputs staged and moved into place together.
+"""Files written and read safely: every write of bem3d goes through here.
+
+Writes: a file is written to a temporary file beside its target, checked (the writer raised
+nothing and the file is not empty or short), then renamed over the target, so a target is the
+old file or the whole new one. A failed write (a full disk) raises OSError.
 
 The output folder rule: bem3d never overwrites one of its inputs, never writes outside the
 chosen folder, and does not replace the results of an earlier run there unless forced. All
 files of a run are written into a hidden staging folder inside the output folder and moved into
-place together at the end; after an error or Ctrl-C the staging folder is removed (and the
-output folder too if this run created it), so a run leaves all of its files or none.
+place together at the end, result.json (the mark of a complete result) removed first and put
+back last; after an error or Ctrl-C the staging folder is removed (and the output folder too if
+this run created it), so a run leaves all of its files or none. Temporary files and staging
+folders left by a killed run are swept when the next run checks the folder.
+
+Reads: input files must be regular files (links resolved; a FIFO or device is refused, it
+could block or never end) of bounded size.
 """
 
+import errno
 import os
 import shutil
 import signal
+import stat
 import tempfile
 import threading
+import time
 from contextlib import contextmanager
 from pathlib import Path
 
-from bem3d.base.errors import ModelError, option
+from bem3d.base.errors import MeshError, ModelError, option
 
 _UMASK = os.umask(0o022)
+os.umask(_UMASK)
+#: Name prefixes of bem3d's temporary files and staging folders; the process id follows, so a
+#: later run can tell a killed run's leftovers from a live run's files.
+TEMP_PREFIX = ".bem3d-tmp-"
+STAGE_PREFIX = ".bem3d-partial-"
+#: Leftovers older than this are swept even if their process id is alive again (reused).
+STALE_SECONDS = 24 * 3600
+#: The file that marks a result folder as complete: moved into place last.
+RESULT_MARK = "result.json"
+#: Largest mesh file read: a binary STL of 80 million panels (10^6 panels take about 0.1 GB).
+MAX_MESH_BYTES = 4 << 30
+
+
+def _temp_prefix(kind):
+    return f"{kind}{os.getpid()}-"
 
 
 @contextmanager
 def atomic_path(target):
-    """Yield a temporary path beside target (same suffix); it replaces target only on success."""
+    """Yield a temporary path beside target (same suffix); it replaces target only if the block
+    raised nothing and the file is not empty (OSError otherwise)."""
     target = Path(target)
     target.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.stem}.", suffix=target.suffix, dir=target.parent)
+    fd, tmp = tempfile.mkstemp(prefix=_temp_prefix(TEMP_PREFIX), suffix=target.suffix,
+                               dir=target.parent)
     os.close(fd)
     try:
         yield Path(tmp)
+        if os.path.getsize(tmp) == 0:        # a writer that failed quietly (VTK does)
+            raise OSError(errno.EIO, "the file came out empty (is the disk full?)", str(target))
         os.chmod(tmp, 0o666 & ~_UMASK)       # mkstemp makes files private; outputs are not
         os.replace(tmp, target)
     finally:
@@ -36,24 +67,97 @@ def atomic_path(target):
             os.unlink(tmp)
 
 
-def write_text(target, text):
+def write_bytes(target, data):
+    """Write data to target atomically; a short write is an OSError."""
     with atomic_path(target) as tmp:
-        tmp.write_text(text, encoding="utf-8")
+        with open(tmp, "wb") as fh:
+            written = fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())
+        if written != len(data) or os.path.getsize(tmp) != len(data):
+            raise OSError(errno.EIO, f"short write ({written} of {len(data)} bytes)",
+                          str(target))
 
 
-#: Name prefix of the staging folder inside the output folder.
-STAGE_PREFIX = ".bem3d-partial-"
+def write_text(target, text):
+    """Write text (UTF-8) to target atomically and checked (write_bytes)."""
+    write_bytes(target, text.encode("utf-8"))
 
 
 def check_output_folder(folder, inputs, planned, force=False):
-    """Before a run: refuse an output folder that is a file, a planned output that is one of
-    the run's inputs, and (unless force) a folder already holding a planned output.
+    """Before a run: refuse an output folder that is a file or cannot be written, a planned
+    output that is one of the run's inputs, and (unless force) a folder already holding a
+    planned output. Sweeps the leftovers of killed runs from the folder.
 
     inputs: paths the run reads; planned: names of files the run will write in the folder."""
     folder = Path(folder)
     if folder.exists() and not folder.is_dir():
         raise ModelError(f"{folder}: the output folder is a file")
+    require_writable(folder)
+    sweep_leftovers(folder)
     _refuse_overwrites(folder, list(planned), inputs, force)
+
+
+def require_writable(folder):
+    """Raise OSError unless files can be created in folder, or (if it does not exist yet) in
+    the nearest existing folder above it: tried, so read-only mounts and permissions for
+    root count alike. Leaves nothing behind."""
+    folder = Path(folder).absolute()
+    existing = folder
+    while not existing.exists():
+        existing = existing.parent
+    if not existing.is_dir():
+        raise ModelError(f"{folder}: {existing} is a file, not a folder")
+    try:
+        fd, probe = tempfile.mkstemp(prefix=_temp_prefix(TEMP_PREFIX), dir=existing)
+    except OSError as err:
+        raise OSError(err.errno, f"cannot write in this folder ({err.strerror})",
+                      str(existing)) from None
+    os.close(fd)
+    os.unlink(probe)
+
+
+def sweep_leftovers(folder):
+    """Remove bem3d's temporary files and staging folders in folder whose process is gone (or
+    that are older than STALE_SECONDS). Returns how many were removed; never raises."""
+    removed = 0
+    try:
+        entries = list(os.scandir(folder))
+    except OSError:
+        return 0
+    for entry in entries:
+        prefix = next((p for p in (TEMP_PREFIX, STAGE_PREFIX) if entry.name.startswith(p)),
+                      None)
+        if prefix is None or not _stale(entry, prefix):
+            continue
+        try:
+            if entry.is_dir(follow_symlinks=False):
+                shutil.rmtree(entry.path)
+            else:
+                os.unlink(entry.path)
+            removed += 1
+        except OSError:
+            pass
+    return removed
+
+
+def _stale(entry, prefix):
+    pid = entry.name[len(prefix):].partition("-")[0]
+    try:
+        age = time.time() - entry.stat(follow_symlinks=False).st_mtime
+    except OSError:
+        return False
+    if age > STALE_SECONDS:
+        return True
+    if not pid.isdigit():
+        return False
+    try:
+        os.kill(int(pid), 0)
+    except ProcessLookupError:
+        return True
+    except OSError:                      # alive, owned by someone else
+        return False
+    return False
 
 
 def _refuse_overwrites(folder, names, inputs, force):
@@ -83,13 +187,16 @@ def staged_outputs(folder, inputs, force=False):
     run created."""
     folder = Path(folder)
     created = _make_folders(folder)
-    stage = Path(tempfile.mkdtemp(prefix=STAGE_PREFIX, dir=folder))
+    stage = Path(tempfile.mkdtemp(prefix=_temp_prefix(STAGE_PREFIX), dir=folder))
     done = False
     try:
         yield stage
-        names = sorted(os.listdir(stage))
+        names = sorted(os.listdir(stage), key=lambda n: (n == RESULT_MARK, n))
         _refuse_overwrites(folder, names, inputs, force)
         with _interrupts_held():
+            # a kill during the moves leaves no result.json: an incomplete folder shows it
+            if RESULT_MARK in names and os.path.lexists(folder / RESULT_MARK):
+                os.unlink(folder / RESULT_MARK)
             for name in names:
                 os.replace(stage / name, folder / name)
             done = True
@@ -137,3 +244,56 @@ def _interrupts_held():
                       else signal.default_int_handler)
     if caught:
         raise KeyboardInterrupt
+
+
+def regular_file(path, limit, what="file", error=ModelError):
+    """The size of path in bytes after checking that it is a regular file (links resolved) of
+    at most `limit` bytes; error(message) otherwise. A FIFO would block the read and a device
+    such as /dev/zero never ends, so both are refused without reading."""
+    path = Path(path)
+    try:
+        fd = os.open(path, os.O_RDONLY | os.O_NONBLOCK)   # a FIFO opens without a writer
+    except FileNotFoundError:
+        raise error(f"{path}: {what} not found") from None
+    except OSError as err:
+        raise error(f"{path}: cannot read {what} ({err.strerror or err})") from None
+    try:
+        info = os.fstat(fd)
+    finally:
+        os.close(fd)
+    if not stat.S_ISREG(info.st_mode):
+        raise error(f"{path}: not a regular file (a folder, FIFO or device); give a {what}")
+    if info.st_size > limit:
+        raise error(f"{path}: {info.st_size:,} bytes, more than the {limit:,} a {what} may "
+                    "have")
+    return info.st_size
+
+
+def read_regular(path, limit, what="file", error=ModelError):
+    """The bytes of a regular file of at most `limit` bytes (see regular_file)."""
+    regular_file(path, limit, what, error)
+    try:
+        with open(path, "rb") as fh:
+            data = fh.read(limit + 1)
+    except OSError as err:
+        raise error(f"{path}: cannot read {what} ({err.strerror or err})") from None
+    if len(data) > limit:                # grew since it was checked
+        raise error(f"{path}: more than the {limit:,} bytes a {what} may have")
+    return data
+
+
+def check_mesh_file(path):
+    """Raise MeshError unless path is a regular file of at most MAX_MESH_BYTES."""
+    regular_file(path, MAX_MESH_BYTES, "mesh file", MeshError)
+
+
+def file_digest(path, hasher):
+    """hasher (hashlib object) fed with the bytes of a checked mesh file, read in pieces."""
+    check_mesh_file(path)
+    try:
+        with open(path, "rb") as fh:
+            while chunk := fh.read(1 << 20):
+                hasher.update(chunk)
+    except OSError as err:
+        raise MeshError(f"{path}: cannot read ({err.strerror or err})") from None
+    return hasher.hexdigest()

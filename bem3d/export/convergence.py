@@ -1,14 +1,16 @@
 """Files of a mesh-convergence study: each mesh's outputs, convergence.json and convergence.csv."""
 
-import csv
-import io
 import json
 from pathlib import Path
 
 import numpy as np
 
-from bem3d.base.files import atomic_path
+from bem3d.base.files import write_text
+from bem3d.export.names import csv_cell, csv_text
 from bem3d.export.outputs import write_outputs
+
+#: The study's own files in its folder (besides each mesh's folder mesh_<level>).
+CONVERGENCE_FILES = ("convergence.json", "convergence.csv")
 
 
 def convergence_record(conv):
@@ -33,17 +35,13 @@ def write_convergence(conv, folder, model, warnings=()):
     folder = Path(folder)
     for level, (panels, result) in enumerate(zip(conv.panels, conv.results)):
         write_outputs(folder / f"mesh_{level}", panels, result, model, warnings)
-    files = [folder / "convergence.json", folder / "convergence.csv"]
-    with atomic_path(files[0]) as tmp:
-        tmp.write_text(json.dumps(convergence_record(conv), indent=2) + "\n", encoding="utf-8")
-    text = io.StringIO()
-    writer = csv.writer(text, lineterminator="\n")
-    writer.writerow(["matrix", "row", "column"] + [f"panels_{len(p)}_F" for p in conv.panels]
-                    + ["extrapolated_F", "error_estimate_F", "order", "status"])
+    files = [folder / name for name in CONVERGENCE_FILES]
+    write_text(files[0], json.dumps(convergence_record(conv), indent=2) + "\n")
+    rows = [["matrix", "row", "column"] + [f"panels_{len(p)}_F" for p in conv.panels]
+            + ["extrapolated_F", "error_estimate_F", "order", "status"]]
     for label, a, b, levels, ext, ij in conv.entries():
-        writer.writerow([label, a, b] + [f"{v:.9e}" for v in levels]
-                        + [f"{ext.value[ij]:.9e}", f"{ext.error[ij]:.3e}",
-                           f"{ext.order[ij]:.3f}", ext.status[ij]])
-    with atomic_path(files[1]) as tmp:
-        tmp.write_text(text.getvalue(), encoding="utf-8")
+        rows.append([label, csv_cell(a), csv_cell(b)] + [f"{v:.9e}" for v in levels]
+                    + [f"{ext.value[ij]:.9e}", f"{ext.error[ij]:.3e}",
+                       f"{ext.order[ij]:.3f}", str(ext.status[ij])])
+    write_text(files[1], csv_text(rows))
     return files

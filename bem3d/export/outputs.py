@@ -3,7 +3,8 @@
 from pathlib import Path
 
 from bem3d.export.checks import require_finite
-from bem3d.export.records import result_record, spice_node, write_csv, write_json, write_spice
+from bem3d.export.names import spice_node
+from bem3d.export.records import result_record, write_csv, write_json, write_spice
 from bem3d.export.vtk import write_surface
 
 
@@ -16,15 +17,15 @@ def output_names(model):
 def write_outputs(folder, panels, result, model, warnings=(), extra=None, extra_cells=None):
     """Write result.json, capacitance.csv, <spice_name>.cir and surface.vtp; return their paths.
 
-    Nothing is written if a capacitance, charge, energy or solver figure is NaN or infinite
-    (Bem3dError). extra: more keys for result.json; extra_cells: more cell arrays for
+    Nothing is written if a capacitance, charge, energy, solver or extra figure is NaN or
+    infinite (Bem3dError). extra: more keys for result.json; extra_cells: more cell arrays for
     surface.vtp."""
-    require_finite(result_record(result), ", ".join(str(m) for m in model.meshes))
     folder = Path(folder)
     files = [folder / name for name in output_names(model)]
     record = {"length_unit_of_meshes": model.length_unit,
               "meshes": [str(m) for m in model.meshes], "warnings": list(warnings)}
     record.update(extra or {})
+    require_finite(result_record(result, record), ", ".join(str(m) for m in model.meshes))
     write_json(result, files[0], record)
     write_csv(result, files[1])
     write_spice(result, files[2], model.spice_name)

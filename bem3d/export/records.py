@@ -1,12 +1,12 @@
 """Result records: result.json, capacitance.csv, the SPICE subcircuit and point tables."""
 
 import json
-import re
 
 import numpy as np
 
 from bem3d.base.files import write_text
 from bem3d.base.version import __version__
+from bem3d.export.names import csv_cell, csv_text, spice_node, spice_nodes
 
 CAUTION = ("Engineering estimate from a surface discretisation. Stored field energy in "
            "high-voltage structures can injure; clearances and safety follow the applicable "
@@ -39,32 +39,32 @@ def result_record(result, extra=None):
 
 
 def write_json(result, target, extra=None):
-    write_text(target, json.dumps(result_record(result, extra), indent=2) + "\n")
+    # allow_nan=False: a NaN would make the file invalid JSON; require_finite stops it earlier
+    write_text(target, json.dumps(result_record(result, extra), indent=2, allow_nan=False)
+               + "\n")
 
 
 def write_csv(result, target):
     """Both matrices in one table: columns matrix, conductor, then one column per conductor (F);
     with lossy media the conductance matrices follow (S)."""
-    rows = ["matrix,conductor," + ",".join(result.names)]
+    names = [csv_cell(n) for n in result.names]
+    rows = [["matrix", "conductor", *names]]
     tables = [("maxwell_F", result.maxwell), ("mutual_F", result.mutual)]
     if result.loss is not None:
         tables += [("maxwell_conductance_S", result.conductance),
                    ("mutual_conductance_S", result.mutual_conductance)]
     for label, matrix in tables:
-        for name, row in zip(result.names, matrix):
-            rows.append(f"{label},{name}," + ",".join(f"{v:.9e}" for v in row))
-    write_text(target, "\n".join(rows) + "\n")
-
-
-def spice_node(name):
-    """A conductor name made safe as a SPICE node name."""
-    return re.sub(r"[^A-Za-z0-9_]", "_", name)
+        for name, row in zip(names, matrix):
+            rows.append([label, name, *(f"{v:.9e}" for v in row)])
+    write_text(target, csv_text(rows))
 
 
 def write_spice(result, target, subckt="bem3d_capacitance"):
     """A .SUBCKT of the mutual capacitances, and with lossy media a resistor 1/G for each
-    mutual conductance; port REF is the far/ground reference."""
-    nodes = [spice_node(n) for n in result.names]
+    mutual conductance; port REF is the far/ground reference. Nodes are the conductor names
+    made safe (names.spice_nodes; a comment lists those that differ); elements are numbered
+    by conductor, C_i_j and R_i_j, so no two get the same name."""
+    nodes = spice_nodes(result.names)
     mutual = result.mutual
     conductance = result.mutual_conductance
     lines = [f"* mutual capacitances from bem3d {__version__}; {result.n_panels} panels",
@@ -75,14 +75,16 @@ def write_spice(result, target, subckt="bem3d_capacitance"):
                   "* a negative one is no error: the loss is positive for the network as a "
                   "whole, not resistor by resistor"]
         smallest = 1e-9 * float(np.abs(conductance).max())
-    lines.append(f".SUBCKT {spice_node(subckt)} " + " ".join(nodes) + " REF")
+    lines += [f".SUBCKT {spice_node(subckt)} " + " ".join(nodes) + " REF",
+              *(f"* node {node} is the conductor {json.dumps(name)}"
+                for node, name in zip(nodes, result.names) if node != name)]
     for i, a in enumerate(nodes):
-        ends = [(j, nodes[j]) for j in range(i + 1, len(nodes))] + [(i, "REF")]
-        for j, b in ends:
+        ends = [(j, nodes[j], j + 1) for j in range(i + 1, len(nodes))] + [(i, "REF", "REF")]
+        for j, b, label in ends:
             if mutual[i, j] > 0:
-                lines.append(f"C_{a}_{b} {a} {b} {mutual[i, j]:.6e}")
+                lines.append(f"C_{i + 1}_{label} {a} {b} {mutual[i, j]:.6e}")
             if conductance is not None and abs(conductance[i, j]) > smallest:
-                lines.append(f"R_{a}_{b} {a} {b} {1.0 / conductance[i, j]:.6e}")
+                lines.append(f"R_{i + 1}_{label} {a} {b} {1.0 / conductance[i, j]:.6e}")
     lines.append(f".ENDS {spice_node(subckt)}")
     write_text(target, "\n".join(lines) + "\n")
 
@@ -99,5 +101,5 @@ def write_point_table(points, columns, target):
             values = values[:, None]
         data.append(values)
     table = np.hstack(data)
-    lines = [",".join(names)] + [",".join(f"{v:.9e}" for v in row) for row in table]
-    write_text(target, "\n".join(lines) + "\n")
+    write_text(target, csv_text([[csv_cell(n) for n in names]]
+                                + [[f"{v:.9e}" for v in row] for row in table]))

@@ -1,12 +1,11 @@
 """A sweep's summary: summary.csv (one row per case) and summary.png (entries against the first
 swept parameter)."""
 
-import csv
-import io
 import math
 
-from bem3d.base.files import atomic_path
+from bem3d.base.files import atomic_path, write_text
 from bem3d.base.units import prefix_for
+from bem3d.export.names import csv_cell, csv_text
 
 
 def entry_column(entry):
@@ -15,13 +14,22 @@ def entry_column(entry):
 
 
 def write_summary(rows, target):
-    """summary.csv: one row per case, written atomically."""
-    text = io.StringIO()
-    writer = csv.DictWriter(text, fieldnames=list(rows[0]), lineterminator="\n")
-    writer.writeheader()
-    writer.writerows(rows)
-    with atomic_path(target) as tmp:
-        tmp.write_text(text.getvalue(), encoding="utf-8")
+    """summary.csv: one row per case, written atomically. Text cells (labels, columns named
+    after conductors, error messages) are made safe with names.csv_cell; numbers stay."""
+    columns = list(rows[0])
+    write_text(target, csv_text([[csv_cell(c) for c in columns]]
+                                + [[csv_cell(v) if isinstance(v, str) and not _number(v)
+                                    else "" if v is None else str(v)
+                                    for v in (r[c] for c in columns)]
+                                   for r in rows]))
+
+
+def _number(text):
+    try:
+        float(text)
+    except ValueError:
+        return False
+    return True
 
 
 def plot_summary(rows, x_column, group_columns, entries, target):

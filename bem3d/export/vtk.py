@@ -1,9 +1,14 @@
-"""VTK files of panels, grids and slices (pyvista)."""
+"""VTK files of panels, grids and slices (pyvista), each written to a temporary file beside
+its target, checked, then moved into place (base.files.atomic_path).
+
+VTK writes array names into XML attributes as they are, so names made from conductor names are
+escaped here (export.names.xml_attribute); a reader shows them as given."""
 
 
 import numpy as np
 
 from bem3d.base.files import atomic_path
+from bem3d.export.names import xml_attribute
 
 
 def surface_polydata(panels, cell_arrays):
@@ -14,7 +19,7 @@ def surface_polydata(panels, cell_arrays):
     faces = np.hstack([np.full((len(panels), 1), 3), corner_ids.reshape(-1, 3)]).ravel()
     mesh = pv.PolyData(points, faces)
     for name, values in cell_arrays.items():
-        mesh.cell_data[name] = values
+        mesh.cell_data[xml_attribute(name)] = values
     return mesh
 
 
@@ -35,7 +40,7 @@ def image_data(grid, point_arrays):
     image = pv.ImageData(dimensions=grid.shape, spacing=tuple(grid.spacing),
                          origin=tuple(grid.origin))
     for name, values in point_arrays.items():
-        image.point_data[name] = values
+        image.point_data[xml_attribute(name)] = values
     return image
 
 
@@ -55,6 +60,6 @@ def write_slice(grid, point_arrays, target):
     quads = np.column_stack([np.full(corners[0].size, 4)] + [c.ravel() for c in corners])
     mesh = pv.PolyData(grid.points(), quads.ravel())
     for name, values in point_arrays.items():
-        mesh.point_data[name] = values
+        mesh.point_data[xml_attribute(name)] = values
     with atomic_path(target) as tmp:
         mesh.save(tmp)

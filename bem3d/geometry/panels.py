@@ -4,6 +4,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from bem3d.base.errors import MeshError
+
 
 @dataclass(frozen=True)
 class Panels:
@@ -26,6 +28,10 @@ class Panels:
     moments: np.ndarray = field(init=False, repr=False)
 
     def __post_init__(self):
+        repeated = sorted({n for n in self.names if self.names.count(n) > 1})
+        if repeated:          # one name for two conductors: --volts and outputs would mix them
+            raise MeshError(f"several conductors are named {', '.join(map(repr, repeated))} "
+                            "(Gmsh physical groups of the same name?); give each its own name")
         v = np.ascontiguousarray(self.vertices, dtype=np.float64)
         cross = np.cross(v[:, 1] - v[:, 0], v[:, 2] - v[:, 0])
         twice_area = np.linalg.norm(cross, axis=1)

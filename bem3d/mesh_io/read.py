@@ -24,6 +24,7 @@ import numpy as np
 
 from bem3d.base.constants import LENGTH_UNITS
 from bem3d.base.errors import MeshError, ModelError
+from bem3d.base.files import check_mesh_file
 from bem3d.base.resources import check_panel_count
 from bem3d.geometry.canonical import canonical_order
 from bem3d.geometry.messages import nonfinite_message
@@ -106,10 +107,7 @@ def _read_file(path, split, scale, max_panels=None):
     """One file: points (m), triangles (n, 3), their groups, group names, warnings.
 
     With split=False every triangle is in group 0 (the caller names the conductor)."""
-    if not path.exists():
-        raise MeshError(f"{path}: file not found")
-    if not path.is_file():
-        raise MeshError(f"{path}: not a file")
+    check_mesh_file(path)
     file_format, file_warnings = inspect_file(path)
     try:
         # meshio reports a failing reader on stdout and stderr besides raising, and the STL

@@ -3,7 +3,8 @@
 An entry is one numpy .npz file (no pickles) named by a SHA-256 key of the panel geometry and
 of every setting the arrays depend on; the file repeats the key and the format version, and
 zip's CRC-32 of every member is checked while it is read. A stale, corrupt or unreadable entry
-counts as missing: it is deleted and rebuilt. Location: $BEM3D_CACHE_DIR, else
+counts as missing: it is deleted and rebuilt; an entry that cannot be written costs a
+rebuild next time, never the run. Temporary files of killed runs are swept on the next save. Location: $BEM3D_CACHE_DIR, else
 $XDG_CACHE_HOME/bem3d, else ~/.cache/bem3d. Deleting the folder clears the cache.
 """
 
@@ -15,6 +16,8 @@ import zipfile
 from pathlib import Path
 
 import numpy as np
+
+from bem3d.base.files import TEMP_PREFIX, sweep_leftovers
 
 #: Bumped whenever the stored arrays change meaning, so that old entries are rebuilt.
 FORMAT = 5
@@ -64,14 +67,19 @@ class OperatorCache:
         # header flag bits) for a damaged member header
         except (OSError, ValueError, KeyError, EOFError, RuntimeError, NotImplementedError,
                 zipfile.BadZipFile):
-            path.unlink(missing_ok=True)
+            try:
+                path.unlink(missing_ok=True)
+            except OSError:              # a folder in its place, or a read-only cache
+                pass
             return None
 
     def save(self, key, arrays):
         """Store arrays under key: written to a temporary file in the folder, then renamed, so
         an entry is complete or absent. Returns the path."""
         self.folder.mkdir(parents=True, exist_ok=True)
-        fd, tmp = tempfile.mkstemp(prefix=f".{key[:16]}.", suffix=".npz", dir=self.folder)
+        sweep_leftovers(self.folder)     # entries of killed runs can be gigabytes
+        fd, tmp = tempfile.mkstemp(prefix=f"{TEMP_PREFIX}{os.getpid()}-", suffix=".npz",
+                                   dir=self.folder)
         try:
             with os.fdopen(fd, "wb") as fh:
                 np.savez(fh, key=np.array(key), format=np.array(FORMAT), **arrays)

@@ -70,5 +70,6 @@ def energy_balance(panels, result, grid, grid_fields, boundary_fields, boundary,
         "energy_outside_grid_J": w_tail,
         "energy_outside_grid_multipole_J": w_tail_md,
         "energy_grid_plus_outside_J": w_grid + w_tail,
-        "fraction_in_grid": w_grid / w_matrix if w_matrix else float("nan"),
+        # no energy (every conductor at 0 V): no fraction, null in result.json
+        "fraction_in_grid": w_grid / w_matrix if w_matrix else None,
     }

@@ -10,7 +10,9 @@ import numpy as np
 
 from bem3d.base.constants import EPS0
 from bem3d.base.errors import ModelError, ResourceError, option
+from bem3d.base.files import read_regular
 from bem3d.geometry.topology import closed_conductors
+from bem3d.mesh_io.read import MAX_COORDINATE_M
 from bem3d.operators.points import evaluate
 from bem3d.post.energy import energy_balance
 from bem3d.post.fields import conductor_forces, peak_fields, surface_fields
@@ -19,6 +21,12 @@ from bem3d.solve.dielectric import medium_at
 
 #: Largest number of grid points a run may ask for (each point costs ~100 bytes per excitation).
 MAX_GRID_POINTS = 20_000_000
+#: Largest automatic box margin, as a fraction of the model's size.
+MAX_MARGIN = 100.0
+#: Largest point list (--at): rows are parsed one by one in Python, about 300 bytes each.
+MAX_LISTED_POINTS = 1_000_000
+#: A point list's file size limit: MAX_LISTED_POINTS rows of three long numbers.
+MAX_POINT_FILE_BYTES = 128 * MAX_LISTED_POINTS
 #: Air breaks down near 3 kV/mm at sea level (common practice, no source).
 AIR_BREAKDOWN_V_PER_M = 3e6
 FIELD_CAUTION = ("Air breaks down near 3 kV/mm at sea level (common practice, no source); "
@@ -50,6 +58,9 @@ class FieldRequest:
     def grid(self, panels, ground_z=None):
         v = panels.vertices.reshape(-1, 3)
         if self.box is None:
+            if not 0 <= self.margin <= MAX_MARGIN:
+                raise ModelError(f"{option('margin')} must lie between 0 and {MAX_MARGIN:g} "
+                                 f"(a fraction of the model's size), got {self.margin:g}")
             lo, hi = v.min(axis=0), v.max(axis=0)
             pad = self.margin * (hi - lo).max()
             lo, hi = lo - pad, hi + pad
@@ -57,12 +68,22 @@ class FieldRequest:
                 lo[2] = ground_z
         else:
             lo, hi = (np.asarray(b, float) for b in self.box)
+            if not np.all(np.abs(np.concatenate([lo, hi])) <= MAX_COORDINATE_M):
+                raise ModelError(f"{option('box')}: coordinates must be finite numbers within "
+                                 f"{MAX_COORDINATE_M:.0e} m")
             if np.any(hi <= lo):
                 raise ModelError(f"{option('box')}: each maximum must exceed its minimum")
         if self.spacing is not None:
-            if not self.spacing > 0:
-                raise ModelError(f"{option('spacing')} must be positive")
-            counts = np.floor((hi - lo) / self.spacing + 1e-9).astype(int) + 1
+            if not 0 < self.spacing < math.inf:
+                raise ModelError(f"{option('spacing')} must be a positive number")
+            # in floats first: a tiny spacing gives counts beyond any integer type
+            with np.errstate(over="ignore"):
+                per_axis = np.floor((hi - lo) / self.spacing + 1e-9) + 1
+                total = float(np.prod(per_axis))
+            if not total <= MAX_GRID_POINTS:
+                raise ResourceError(f"{option('spacing')} {self.spacing:g} m gives too many grid "
+                                    f"points (limit {MAX_GRID_POINTS:,}); use a coarser one")
+            counts = per_axis.astype(int)
             hi = lo + (counts - 1) * self.spacing
         else:
             counts = np.asarray(self.points, int)
@@ -134,9 +155,13 @@ def field_request(scale, *, box=None, margin=0.5, spacing=None, points=41, slice
 def read_points(path, scale):
     """x, y, z rows (m) from a CSV file; a first line that is not numbers is a header."""
     path = Path(path)
+    data = read_regular(path, MAX_POINT_FILE_BYTES, "point list")
+    if data.count(b"\n") > MAX_LISTED_POINTS:
+        raise ResourceError(f"{path}: more than {MAX_LISTED_POINTS:,} rows; split the point "
+                            "list into several runs")
     try:
-        lines = path.read_text(encoding="utf-8").splitlines()
-    except (OSError, UnicodeDecodeError) as err:
+        lines = data.decode("utf-8").splitlines()
+    except UnicodeDecodeError as err:
         raise ModelError(f"{path}: cannot read point list ({err})") from None
     rows = []
     for number, line in enumerate(lines, 1):

@@ -203,10 +203,15 @@ def _solve_compressed(panels, rhs, eps_r, rules, tol, compression, ground_z, hav
     timings["solve"] = time.perf_counter() - t0
     if store is not None and hit is None:
         t0 = time.perf_counter()
-        path = store.save(key, {**operator.arrays(), **pre.arrays(),
-                                "solution": report.charges * operator.scale})
+        try:
+            path = store.save(key, {**operator.arrays(), **pre.arrays(),
+                                    "solution": report.charges * operator.scale})
+            _log(progress, f"cached the operator in {path}")
+        except OSError as err:           # a full or read-only cache costs a rebuild, no more
+            settings["cache"] = "not stored"
+            print(f"warning: operator cache {store.folder} cannot be written "
+                  f"({err.strerror or err}); the result is unaffected", file=sys.stderr)
         timings["cache_write"] = time.perf_counter() - t0
-        _log(progress, f"cached the operator in {path}")
     if store is not None:
         settings["cache_file"] = str(store.path(key))
     return report, settings, timings

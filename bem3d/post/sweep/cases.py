@@ -4,13 +4,15 @@ import glob
 import hashlib
 import itertools
 import json
+import math
 import re
 from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 
-from bem3d.base.errors import MeshError, ModelError
+from bem3d.base.errors import ModelError
+from bem3d.base.files import file_digest
 from bem3d.base.version import __version__
 from bem3d.geometry.moves import conductor_indices, move_conductors
 from bem3d.geometry.quality import check_geometry
@@ -18,6 +20,7 @@ from bem3d.mesh_io.bodies import read_bodies
 from bem3d.mesh_io.read import read_conductors
 from bem3d.operators.rules import PairRules
 from bem3d.post.convergence import mesh_sources
+from bem3d.post.sweep.syntax import MAX_CASES
 from bem3d.results import potential_vector
 
 
@@ -46,6 +49,10 @@ def build_cases(moves, sources, unit="m"):
     if sources:
         return [Case(i, f"{i:04d}_{_safe(Path(s).stem)}", {"input": str(s)}, source=str(s))
                 for i, s in enumerate(sources)]
+    total = math.prod(len(m.values) for m in moves)
+    if total > MAX_CASES:
+        raise ModelError(f"the variations make {total:,} cases, more than the {MAX_CASES:,} a "
+                         "sweep may have")
     columns = [m.column(unit) for m in moves]
     if len(set(columns)) < len(columns):
         raise ModelError("the same variation is given twice")
@@ -78,10 +85,7 @@ def _file_digest(path, memo):
     """SHA-256 of a file's bytes, computed once per sweep."""
     key = str(Path(path).resolve())
     if key not in memo:
-        try:
-            memo[key] = hashlib.sha256(Path(path).read_bytes()).hexdigest()
-        except OSError as err:
-            raise MeshError(f"{path}: cannot read ({err.strerror or err})") from None
+        memo[key] = file_digest(path, hashlib.sha256())
     return memo[key]
 
 

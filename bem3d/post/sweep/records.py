@@ -3,7 +3,7 @@
 import json
 
 from bem3d.base.errors import Bem3dError
-from bem3d.base.files import atomic_path
+from bem3d.base.files import write_text
 
 
 def case_record(case, keys, result=None, error=None):
@@ -32,18 +32,17 @@ def read_record(folder):
         return None
 
 
-def clear_folder(folder):
-    """Empty a case folder before new results go in (stale files would mislead)."""
-    if folder.is_dir():
-        for f in folder.iterdir():
-            if f.is_file():
-                f.unlink()
+def clear_stale(folder, keep):
+    """Remove the files of a case folder not named in `keep` once new results are in place
+    (an earlier run's other files would mislead)."""
+    for f in folder.iterdir():
+        if f.is_file() and f.name not in keep:
+            f.unlink()
 
 
 def write_record(folder, record):
     """folder/case.json, written atomically."""
-    with atomic_path(folder / "case.json") as tmp:
-        tmp.write_text(json.dumps(record, indent=2) + "\n", encoding="utf-8")
+    write_text(folder / "case.json", json.dumps(record, indent=2) + "\n")
 
 
 def error_text(err):
@@ -52,8 +51,8 @@ def error_text(err):
 
 
 def record_failure(folder, case, keys, err):
-    """Record a failed case (its error in case.json, no results); the sweep goes on."""
+    """Record a failed case (its error in case.json); the sweep goes on. Files an earlier run
+    finished in the folder stay: a failure never deletes results."""
     record = case_record(case, keys, error=error_text(err))
-    clear_folder(folder)
     write_record(folder, record)
     return record

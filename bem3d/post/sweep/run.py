@@ -7,15 +7,16 @@ from pathlib import Path
 
 from bem3d.base.constants import LENGTH_UNITS
 from bem3d.base.errors import Bem3dError, ModelError, option
+from bem3d.base.files import require_writable, staged_outputs, sweep_leftovers
 from bem3d.export.outputs import write_outputs
 from bem3d.export.sweep_summary import plot_summary, write_summary
 from bem3d.model import Model
-from bem3d.post.sweep.cache import load_cached, store_cached, with_potentials
+from bem3d.post.sweep.cache import load_cached, store_cached, usable_cache, with_potentials
 from bem3d.post.sweep.cases import build_cases, case_keys, case_panels, expand_inputs, read_base
 from bem3d.post.sweep.executors import open_executor, solve_task
 from bem3d.post.sweep.records import (
     case_record,
-    clear_folder,
+    clear_stale,
     read_record,
     record_failure,
     write_record,
@@ -83,11 +84,15 @@ def run_sweep(request: SweepRequest, on_event=None) -> SweepOutcome:
 
     on_event receives one dict per event: {"event": "start", cases, skipped, to_run, to_solve,
     executor, workers, threads}, {"event": "case", how: "skipped" | "cached" | "solved" |
-    "failed", and the record's CASE_EVENT_FIELDS} per case, and {"event": "done", cases, ok,
-    failed, pending, interrupted, summary, solved, cached} at the end."""
+    "failed", and the record's CASE_EVENT_FIELDS} per case, {"event": "warning", text} when the
+    cache cannot be used, and {"event": "done", cases, ok, failed, pending, interrupted,
+    summary, solved, cached} at the end."""
     def emit(event, **fields):
         if on_event is not None:
             on_event({"event": event, **fields})
+
+    def warn(text):
+        emit("warning", text=text)
 
     def emit_case(record, how):
         emit("case", how=how, **{k: record.get(k) for k in CASE_EVENT_FIELDS})
@@ -127,7 +132,13 @@ def run_sweep(request: SweepRequest, on_event=None) -> SweepOutcome:
             skipped.append(old)
         else:
             work.append((case, model, keys))
-    to_solve = sum(not (cache / f"{keys[0]}.npz").exists() for _, _, keys in work)
+    # the folders are checked once the request is known to be good, before any solve
+    require_writable(folder)
+    for place in [folder, *sorted(folder.glob("cases/*"))]:
+        sweep_leftovers(place)
+    cache = usable_cache(cache, warn)
+    to_solve = sum(cache is None or not (cache / f"{keys[0]}.npz").exists()
+                   for _, _, keys in work)
 
     runner, threads = open_executor(request.scheduler, request.workers, request.threads,
                                     to_solve)
@@ -144,8 +155,9 @@ def run_sweep(request: SweepRequest, on_event=None) -> SweepOutcome:
     def finish(case, model, keys, panels, warnings, result, how):
         case_folder = folder / "cases" / case.label
         result = with_potentials(result, model.volts, model.floating)
-        clear_folder(case_folder)
-        write_outputs(case_folder, panels, result, model, warnings)
+        with staged_outputs(case_folder, model.files(), force=True) as stage:
+            written = write_outputs(stage, panels, result, model, warnings)
+        clear_stale(case_folder, {f.name for f in written})
         records[case.index] = case_record(case, keys, result)
         write_record(case_folder, records[case.index])
         counts[how] += 1
@@ -165,7 +177,7 @@ def run_sweep(request: SweepRequest, on_event=None) -> SweepOutcome:
                 case, model, keys = item
                 try:
                     panels, warnings, bodies = case_panels(case, model, base, unit)
-                    cached = load_cached(cache / f"{keys[0]}.npz", panels)
+                    cached = cache and load_cached(cache / f"{keys[0]}.npz", panels, warn)
                     if cached is not None:
                         finish(case, model, keys, panels, warnings, cached, "cached")
                         continue
@@ -182,7 +194,8 @@ def run_sweep(request: SweepRequest, on_event=None) -> SweepOutcome:
                 case, model, keys, panels, warnings = pending.pop(future)
                 try:
                     result = future.result()
-                    store_cached(cache / f"{keys[0]}.npz", result)
+                    if cache and not store_cached(cache / f"{keys[0]}.npz", result, warn):
+                        cache = None
                     finish(case, model, keys, panels, warnings, result, "solved")
                 except Exception as err:             # any failure stays with its case
                     fail(case, keys, err)

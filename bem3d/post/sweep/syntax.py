@@ -7,6 +7,9 @@ import numpy as np
 
 from bem3d.base.errors import ModelError, option
 
+#: Most cases one sweep may have: each keeps a folder of files and a summary row.
+MAX_CASES = 100_000
+
 
 def parse_values(text, what):
     """Numbers from 'a,b,c' or 'start:stop:count' (count >= 2 values, both ends included)."""
@@ -16,6 +19,9 @@ def parse_values(text, what):
             count = int(parts[2])
             if count < 2:
                 raise ValueError
+            if count > MAX_CASES:            # refused before anything is allocated
+                raise ModelError(f"{what}: {count:,} values, more than the {MAX_CASES:,} "
+                                 "cases a sweep may have")
             # 12 digits: 0.4, not linspace's 0.4000000000000001, in labels and the summary
             values = [float(f"{v:.12g}") for v in
                       np.linspace(float(parts[0]), float(parts[1]), count)]
