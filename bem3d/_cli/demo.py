@@ -57,8 +57,8 @@ def run_keypad(folder, force):
     """The touch keypad: the keys without the finger, then the finger swept towards key_1
     (its first position is keypad.toml's), and the touch signal printed and written to
     touch_signal.csv."""
-    check_output_folder(folder, [], [folder / n for n in KEYPAD_FILES], force)
-    check_output_folder(folder / "untouched", [], [folder / "untouched" / "result.json"], force)
+    check_output_folder(folder, [], KEYPAD_FILES, force)
+    check_output_folder(folder / "untouched", [], ["result.json"], force)
     folder.mkdir(parents=True, exist_ok=True)
     model_file = keypad.write_files(folder)
     model = load_model(model_file)
