@@ -14,7 +14,7 @@ import pytest
 
 from bem3d.geometry import shapes
 from bem3d.geometry.panels import Panels
-from bem3d.kernels.pairs import assemble_dense
+from bem3d.kernels.dense import assemble_dense
 from bem3d.operators.rules import PairRules, kernel_arguments
 
 bempp = pytest.importorskip("bempp_cl.api")

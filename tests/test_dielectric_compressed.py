@@ -19,7 +19,7 @@ from bem3d.base.errors import ResourceError
 from bem3d.geometry import shapes
 from bem3d.geometry.bodies import DielectricBody
 from bem3d.geometry.panels import Panels
-from bem3d.kernels.blocks import MID_RULE, NEAR_RULE, ONE_POINT, PAIR_RULE
+from bem3d.kernels.entries import MID_RULE, NEAR_RULE, ONE_POINT, PAIR_RULE
 from bem3d.operators.cluster import ClusterTree, block_partition
 from bem3d.operators.hfield import FieldOperator
 from bem3d.operators.hmatrix import Compression, block_rules

@@ -2,7 +2,7 @@
 
 The dense backend is the reference here: its matrix agrees with bempp-cl's DP0 single layer
 (test_bempp_crosscheck.py) and its capacitances with published values (test_capacitance.py).
-Admissible blocks take one quadrature rule for all their pairs (hkernels.block_rules); their
+Admissible blocks take one quadrature rule for all their pairs (kernels.entries.block_rules); their
 entries are checked against the Galerkin integrals themselves, computed in numpy with a
 degree-8 product rule (Stroud 1971 conical product, checked against exact monomial integrals
 in test_quadrature.py), and ACA against the block's own entries recomputed in numpy.
@@ -15,8 +15,8 @@ import pytest
 from conftest import assert_admissible, covariances, make_panels, moment_rule_block, pair_rule_block
 
 from bem3d.geometry import shapes
-from bem3d.kernels.blocks import MID_RULE, NEAR_RULE, ONE_POINT, PAIR_RULE
-from bem3d.kernels.pairs import assemble_dense
+from bem3d.kernels.dense import assemble_dense
+from bem3d.kernels.entries import MID_RULE, NEAR_RULE, ONE_POINT, PAIR_RULE
 from bem3d.operators.cluster import ClusterTree, block_partition
 from bem3d.operators.dense import DenseOperator
 from bem3d.operators.hmatrix import (

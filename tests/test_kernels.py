@@ -14,7 +14,8 @@ from conftest import covariances, pair_rule_block
 from scipy import integrate
 
 from bem3d.geometry.panels import Panels
-from bem3d.kernels.pairs import moment_pair, panel_pair_integral, triangle_potential
+from bem3d.kernels.pairs import moment_pair, panel_pair_integral
+from bem3d.kernels.triangle import triangle_potential
 from bem3d.operators.quadrature import map_points, triangle_rule
 from bem3d.operators.rules import PairRules, kernel_arguments
 

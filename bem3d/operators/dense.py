@@ -7,7 +7,7 @@ from scipy.sparse.linalg import LinearOperator
 
 from bem3d.base.constants import EPS0
 from bem3d.base.errors import ResourceError
-from bem3d.kernels.pairs import assemble_dense, subtract_images
+from bem3d.kernels.dense import assemble_dense, subtract_images
 from bem3d.operators.rules import PairRules, image_arrays, kernel_arguments
 
 

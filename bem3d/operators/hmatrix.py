@@ -4,7 +4,7 @@ Panels are clustered by bounding-box bisection; blocks of cluster pairs with
 min(diam) <= eta * dist are admissible and approximated by adaptive cross approximation with
 partial pivoting (Bebendorf 2000, Numer. Math. 86, 565-589) followed by QR/SVD recompression to
 the block tolerance, their entries all by the one quadrature rule the dense backend would
-give the block's closest pair (hkernels.block_rules), so that they vary smoothly; all other
+give the block's closest pair (entries.block_rules), so that they vary smoothly; all other
 blocks are leaves filled densely with the dense backend's pair integrals (Hackbusch 1999, Computing 62,
 89-108; Börm, Grasedyck & Hackbusch 2003, Hierarchical matrices, lecture notes 21, MPI
 Leipzig). Storage and work grow like N log N.
@@ -21,7 +21,8 @@ from threadpoolctl import threadpool_limits
 from bem3d.base.constants import EPS0
 from bem3d.base.errors import ResourceError
 from bem3d.geometry.panels import Panels
-from bem3d.kernels import blocks as hkernels
+from bem3d.kernels import aca, entries, products
+from bem3d.kernels.schwarz import coarse_matrix, subdomain_inverses
 from bem3d.operators.cluster import ClusterTree, block_partition
 from bem3d.operators.rules import PairRules, image_arrays, kernel_arguments
 
@@ -90,15 +91,15 @@ def split_blocks(tree, compression, columns=None):
 
 
 def block_rules(blocks, kargs):
-    """The quadrature rule of each admissible block (hkernels.block_rules), for the
+    """The quadrature rule of each admissible block (entries.block_rules), for the
     single-layer or the normal-field argument tuple kargs."""
-    if len(kargs) == hkernels.SINGLE_LAYER_ARGUMENTS:
+    if len(kargs) == entries.SINGLE_LAYER_ARGUMENTS:
         centroids, radii, near, mid, far = kargs[2], kargs[3], kargs[15], kargs[16], kargs[17]
-        return hkernels.block_rules(blocks, centroids[:, None, :], radii, centroids, radii,
+        return entries.block_rules(blocks, centroids[:, None, :], radii, centroids, radii,
                                     near, mid, far)
     points, centroids, radii, near, mid, far = (kargs[0], kargs[5], kargs[6], kargs[12],
                                                 kargs[13], kargs[14])
-    return hkernels.block_rules(blocks, points, np.zeros(len(points)), centroids, radii,
+    return entries.block_rules(blocks, points, np.zeros(len(points)), centroids, radii,
                                 near, mid, far)
 
 
@@ -139,7 +140,7 @@ def assemble_blocks(near, far, compression, kargs, dense_numbers, memory_limit, 
     lr_data = _concatenate(pieces)
     # blocks that did not compress below the break-even rank join the dense leaves
     dense_blocks = np.concatenate((near, far[ranks < 0]))
-    dense_rules = np.concatenate((np.full(len(near), hkernels.PAIR_RULE, np.int64),
+    dense_rules = np.concatenate((np.full(len(near), entries.PAIR_RULE, np.int64),
                                   block_rules(far[ranks < 0], kargs)))
     dense_sizes = dense_blocks[:, 1] * dense_blocks[:, 3]
     need = item * (lr_data.size + dense_sizes.sum())
@@ -148,7 +149,7 @@ def assemble_blocks(near, far, compression, kargs, dense_numbers, memory_limit, 
                             f"than the {memory_limit / 2**30:.1f} GiB allowed")
     dense_offsets = np.concatenate(([0], np.cumsum(dense_sizes))).astype(np.int64)
     dense_data = np.empty(dense_offsets[-1], STORAGE)
-    hkernels.fill_dense_blocks(dense_blocks, dense_rules, dense_offsets, dense_data, kargs,
+    entries.fill_dense_blocks(dense_blocks, dense_rules, dense_offsets, dense_data, kargs,
                                symmetric)
     lr_offsets = np.concatenate(
         ([0], np.cumsum(lr_ranks * (lr_blocks[:, 1] + lr_blocks[:, 3])))).astype(np.int64)
@@ -179,12 +180,12 @@ def _compress(blocks, compression, kargs, budget=None):
         scratch = np.empty(slots[-1])
         # each thread runs its own small LAPACK calls: a threaded BLAS inside would oversubscribe
         with threadpool_limits(limits=1, user_api="blas"):
-            hkernels.compress_blocks(batch, rules[start:stop], slots, scratch, ranks[start:stop],
+            aca.compress_blocks(batch, rules[start:stop], slots, scratch, ranks[start:stop],
                                      ACA_SHARE * eps, SVD_SHARE * eps, kargs)
         r = np.maximum(ranks[start:stop], 0)
         offsets = np.concatenate(([0], np.cumsum(r * (batch[:, 1] + batch[:, 3]))))
         piece = np.empty(offsets[-1], STORAGE)
-        hkernels.gather_blocks(batch, slots, ranks[start:stop], scratch, offsets, piece)
+        aca.gather_blocks(batch, slots, ranks[start:stop], scratch, offsets, piece)
         pieces.append(piece)
         start = stop
         held = sum(p.nbytes for p in pieces)
@@ -289,7 +290,7 @@ class BlockProducts:
         # the kernels take (columns, panels) so that each column is contiguous
         xp = np.ascontiguousarray(x[col_perm].T)
         parts = np.empty((len(self.dense_groups) - 1, x.shape[1], len(row_perm)))
-        hkernels.hmatrix_product(xp, parts, self.dense_blocks, self.dense_offsets,
+        products.hmatrix_product(xp, parts, self.dense_blocks, self.dense_offsets,
                                  self.dense_data, self.lr_blocks, self.lr_offsets, self.lr_ranks,
                                  self.lr_data, self.dense_order, self.lr_order,
                                  self.dense_groups, self.lr_groups, self.max_rank, symmetric)
@@ -368,7 +369,7 @@ class HMatrixOperator(BlockProducts, LinearOperator):
 
         Returns (perm, bounds, inverse_offsets, inverses, coarse) of the unscaled integrals
         (P / scale): subdomain d is panels perm[bounds[d]:bounds[d+1]]; the zero-charge inverse
-        of its principal block (hkernels.zero_charge_inverse, areas: the panels' areas in
+        of its principal block (kernels.schwarz.zero_charge_inverse, areas: the panels' areas in
         cluster numbering) is at inverses[inverse_offsets[d]:], row-major; coarse is R P R^T
         for the subdomain indicators R. leading: cover only the first `leading` panels of the
         cluster numbering (whole clusters of the tree): the preconditioner of that principal
@@ -405,11 +406,11 @@ class HMatrixOperator(BlockProducts, LinearOperator):
         inv_offsets = np.concatenate(([0], np.cumsum(sizes * sizes))).astype(np.int64)
         inverses = np.empty(inv_offsets[-1])
         with threadpool_limits(limits=1, user_api="blas"):     # as in _compress
-            hkernels.subdomain_inverses(bounds, areas, dense_ptr, dense_idx, dense_blocks,
+            subdomain_inverses(bounds, areas, dense_ptr, dense_idx, dense_blocks,
                                         dense_offsets, self.dense_data, lr_ptr, lr_idx,
                                         lr_blocks, lr_offsets, lr_ranks, self.lr_data,
                                         inv_offsets, inverses)
-        coarse = hkernels.coarse_matrix(domain_of, len(sizes), dense_blocks, dense_offsets,
+        coarse = coarse_matrix(domain_of, len(sizes), dense_blocks, dense_offsets,
                                         self.dense_data, lr_blocks, lr_offsets, lr_ranks,
                                         self.lr_data)
         return self.perm, bounds, inv_offsets, inverses, coarse

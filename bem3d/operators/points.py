@@ -11,7 +11,7 @@ import numpy as np
 
 from bem3d.base.constants import EPS0
 from bem3d.geometry.panels import Panels
-from bem3d.kernels.pairs import evaluate_points
+from bem3d.kernels.points import evaluate_points
 from bem3d.mesh_io.read import closed_conductors
 from bem3d.operators.quadrature import map_points, triangle_rule
 

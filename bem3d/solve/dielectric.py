@@ -26,7 +26,7 @@ import scipy.linalg
 
 from bem3d.base.errors import MeshError, ModelError, option
 from bem3d.geometry.panels import Panels
-from bem3d.kernels.pairs import assemble_normal_field
+from bem3d.kernels.points import assemble_normal_field
 from bem3d.mesh_io.read import closed_conductors
 from bem3d.operators.dense import DenseOperator, dense_bytes
 from bem3d.operators.points import winding_numbers
