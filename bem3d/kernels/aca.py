@@ -15,9 +15,9 @@ ACA_CHECKS = 2
 
 
 @njit(cache=True)
-def _residual_row(i, r0, c0, n, k, u, v, out, kargs, rule):
+def _residual_row(i, r0, c0, n, k, u, v, out, operator, rule):
     # out = row i of (block - sum_l u_l v_l^T)
-    block_entries(r0 + i, 0, c0, 1, n, out, kargs, rule)
+    block_entries(r0 + i, 0, c0, 1, n, out, operator, rule)
     for l in range(k):
         f = u[l, i]
         for j in range(n):
@@ -25,9 +25,9 @@ def _residual_row(i, r0, c0, n, k, u, v, out, kargs, rule):
 
 
 @njit(cache=True)
-def _residual_col(j, r0, c0, m, k, u, v, out, kargs, rule):
+def _residual_col(j, r0, c0, m, k, u, v, out, operator, rule):
     # out = column j of (block - sum_l u_l v_l^T)
-    block_entries(r0, 1, c0 + j, 0, m, out, kargs, rule)
+    block_entries(r0, 1, c0 + j, 0, m, out, operator, rule)
     for l in range(k):
         f = v[l, j]
         for i in range(m):
@@ -56,7 +56,7 @@ def _argmax_unused(x, used):
 
 
 @njit(cache=True)
-def _aca(r0, m, c0, n, eps, kmax, kargs, rule):
+def _aca(r0, m, c0, n, eps, kmax, operator, rule):
     # Adaptive cross approximation with partial pivoting (Bebendorf 2000, Numer. Math. 86,
     # 565-589): rank-one crosses u v^T of the residual, the next row pivot being the largest
     # entry of the last column; stop when |u| |v| <= eps |S_k|_F, |S_k|_F updated exactly.
@@ -75,7 +75,7 @@ def _aca(r0, m, c0, n, eps, kmax, kargs, rule):
     i = 0
     while k < kmax:
         used_row[i] = True
-        _residual_row(i, r0, c0, n, k, u, v, v[k], kargs, rule)
+        _residual_row(i, r0, c0, n, k, u, v, v[k], operator, rule)
         jp = _argmax_unused(v[k], used_col)
         if jp < 0 or v[k, jp] == 0.0:
             # the row is represented exactly already; try another
@@ -86,7 +86,7 @@ def _aca(r0, m, c0, n, eps, kmax, kargs, rule):
             continue
         used_col[jp] = True
         v[k] /= v[k, jp]
-        _residual_col(jp, r0, c0, m, k, u, v, u[k], kargs, rule)
+        _residual_col(jp, r0, c0, m, k, u, v, u[k], operator, rule)
         uu = np.dot(u[k], u[k])
         vv = np.dot(v[k], v[k])
         cross = 0.0
@@ -101,14 +101,14 @@ def _aca(r0, m, c0, n, eps, kmax, kargs, rule):
                 seed = (seed * 1103515245 + 12345) % 2147483648
                 ir = _unused(used_row, seed)
                 if ir >= 0:
-                    _residual_row(ir, r0, c0, n, k, u, v, row, kargs, rule)
+                    _residual_row(ir, r0, c0, n, k, u, v, row, operator, rule)
                     if m * np.dot(row, row) > eps * eps * norm2:
                         bad = ir
                         break
                 seed = (seed * 1103515245 + 12345) % 2147483648
                 jc = _unused(used_col, seed)
                 if jc >= 0:
-                    _residual_col(jc, r0, c0, m, k, u, v, col, kargs, rule)
+                    _residual_col(jc, r0, c0, m, k, u, v, col, operator, rule)
                     if n * np.dot(col, col) > eps * eps * norm2:
                         bad = _argmax_unused(col, used_row)
                         break
@@ -193,8 +193,9 @@ def _recompress(u, v, k, eps):
 
 
 @njit(parallel=True, cache=True)
-def compress_blocks(blocks, rules, slots, scratch, ranks, eps_aca, eps_svd, kargs):
-    """ACA and SVD recompression of each block (k, 4) by its quadrature rule rules[b]; writes
+def compress_blocks(blocks, rules, slots, scratch, ranks, eps_aca, eps_svd, operator):
+    """ACA and SVD recompression of each block (k, 4) of `operator` (data.SingleLayer or
+    data.NormalField) by its quadrature rule rules[b]; writes
     U then V of block b at scratch[slots[b]:] and its rank to ranks[b], or ranks[b] = -1 if no
     rank below the block's break-even rank rows*cols/(rows+cols) reached eps_aca (it is then
     stored dense). The room at slots[b] is kmax (rows + cols) numbers, kmax the most rank ACA
@@ -202,7 +203,7 @@ def compress_blocks(blocks, rules, slots, scratch, ranks, eps_aca, eps_svd, karg
     for b in prange(blocks.shape[0]):
         r0, m, c0, n = blocks[b, 0], blocks[b, 1], blocks[b, 2], blocks[b, 3]
         kmax = (slots[b + 1] - slots[b]) // (m + n)
-        u, v, k, ok = _aca(r0, m, c0, n, eps_aca, kmax, kargs, rules[b])
+        u, v, k, ok = _aca(r0, m, c0, n, eps_aca, kmax, operator, rules[b])
         if not ok or k == 0:
             ranks[b] = -1 if not ok else 0
             continue

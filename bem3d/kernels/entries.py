@@ -13,15 +13,12 @@ import numpy as np
 from numba import njit, prange
 from numba.extending import overload
 
-from bem3d.kernels.pairs import moment_pair, pair_integral, panel_pair_integral, point_pair_sum
+from bem3d.kernels.data import SingleLayer
+from bem3d.kernels.pairs import moment_pair, pair_integral, point_pair_sum
 from bem3d.kernels.points import normal_field_entry, points_normal_field
 
-#: Length of the single-layer entry tuple (hmatrix.entry_arguments); the normal-field tuple
-#: (hfield.field_arguments) is shorter, which is how block_entries tells them apart.
-SINGLE_LAYER_ARGUMENTS = 26
-
 #: Quadrature rules of a block's entries. PAIR_RULE: each pair by its own distance, as the
-#: dense backend does (kernels.panel_pair_integral). The others take one rule for every pair of
+#: dense backend does (pairs.panel_pair_integral). The others take one rule for every pair of
 #: an admissible block, the rule the dense backend gives its closest possible pair: the
 #: entries are then one smooth function of the panels' places, which is what makes the block
 #: numerically low-rank. Per pair, the dense backend switches rule at fixed distances and its
@@ -31,24 +28,24 @@ SINGLE_LAYER_ARGUMENTS = 26
 PAIR_RULE, NEAR_RULE, MID_RULE, ONE_POINT = 0, 1, 2, 3
 
 
-def block_entries(i0, di, j0, dj, count, out, a, rule):
-    """out[t] = entry (i0 + t di, j0 + t dj) of the operator that the argument tuple a
-    describes, t < count, by the block's quadrature `rule` (one of PAIR_RULE ... ONE_POINT):
+def block_entries(i0, di, j0, dj, count, out, operator, rule):
+    """out[t] = entry (i0 + t di, j0 + t dj) of the operator that `operator` (data.SingleLayer
+    or data.NormalField) describes, t < count, by the block's quadrature `rule` (one of PAIR_RULE ... ONE_POINT):
     compiled to _single_layer_entries or _field_entries."""
     raise NotImplementedError("only callable from compiled code")
 
 
 @overload(block_entries, jit_options={"cache": True}, inline="always")
-def _entries_by_kind(i0, di, j0, dj, count, out, a, rule):
-    # chosen once per argument-tuple type at compile time, so the ACA, recompression and
-    # block filling below serve both operators
-    if len(a) == SINGLE_LAYER_ARGUMENTS:
-        def single_layer(i0, di, j0, dj, count, out, a, rule):
-            _single_layer_entries(i0, di, j0, dj, count, out, a, rule)
+def _entries_by_kind(i0, di, j0, dj, count, out, operator, rule):
+    # chosen once per structure type at compile time, so the ACA, recompression and block
+    # filling serve both operators
+    if getattr(operator, "instance_class", None) is SingleLayer:
+        def single_layer(i0, di, j0, dj, count, out, operator, rule):
+            _single_layer_entries(i0, di, j0, dj, count, out, operator, rule)
         return single_layer
 
-    def field(i0, di, j0, dj, count, out, a, rule):
-        _field_entries(i0, di, j0, dj, count, out, a, rule)
+    def field(i0, di, j0, dj, count, out, operator, rule):
+        _field_entries(i0, di, j0, dj, count, out, operator, rule)
     return field
 
 
@@ -75,11 +72,16 @@ def _field_rule(i, l, rule, points, weights, point_normals, centroids, areas, pt
 @njit(cache=True)
 def _field_entries(i0, di, j0, dj, count, out, a, rule):
     # out[t] = normal field of source panel j0 + t dj tested over interface panel i0 + t di,
-    # as dielectric._interface_rows computes it (PAIR_RULE) or by the block's rule, less that
-    # of the source's mirror image when the flag (last) is set
-    (points, weights, point_normals, verts, normals, centroids, radii, areas, pts_mid, w_mid,
-     pts_near, w_near, near, mid, far, i_verts, i_normals, i_centroids, i_radii, i_areas,
-     i_pts_mid, i_pts_near, image) = a
+    # each pair by its own distance (PAIR_RULE, as in dense.assemble_normal_field) or by the
+    # block's rule, less that
+    # of the source's mirror image when a.grounded (a: data.NormalField)
+    points, weights, point_normals = a.test_points, a.test_weights, a.test_normals
+    verts, normals, centroids, radii, areas = a.verts, a.normals, a.centroids, a.radii, a.areas
+    pts_mid, w_mid, pts_near, w_near = a.pts_mid, a.w_mid, a.pts_near, a.w_near
+    near, mid, far = a.near, a.mid, a.far
+    i_verts, i_normals, i_centroids = a.image_verts, a.image_normals, a.image_centroids
+    i_radii, i_areas = a.image_radii, a.image_areas
+    i_pts_mid, i_pts_near, image = a.image_pts_mid, a.image_pts_near, a.grounded
     for t in range(count):
         i = i0 + t * di
         j = j0 + t * dj
@@ -122,15 +124,19 @@ def _single_layer_entries(i0, di, j0, dj, count, out, a, rule):
     # out[t] = Galerkin integral of panels i0 + t di and j0 + t dj (m^3), t < count (a row of
     # a block for di = 0, a column for dj = 0), by the block's rule; PAIR_RULE computes
     # exactly what the dense backend does.
-    # a is entry_arguments(): operators.kernel_arguments, then the image panels' arrays
-    # (operators.image_arrays) and a flag; with the flag set the grounded plane's
-    # image term is subtracted as kernels.subtract_images does (an image lies no nearer to a
-    # panel than its source, every conductor being above the plane, so the block's rule holds
-    # for it too). The tuple is unpacked once here: reading arrays out of it inside the loop
-    # would cost reference counting per entry.
-    (verts, normals, centroids, radii, areas, moments, pts_hi, w_hi, pts_near, w_near, pts_mid,
-     w_mid, self_s, self_w, touch, near, mid, far, i_verts, i_normals, i_centroids, i_moments,
-     i_pts_hi, i_pts_near, i_pts_mid, image) = a
+    # a is a data.SingleLayer; when a.grounded the grounded plane's image term is subtracted
+    # as dense.assemble_dense does (an image lies no nearer to a panel than its source, every
+    # conductor being above the plane, so the block's rule holds for it too). The structure
+    # is unpacked once here: reading arrays out of it inside the loop would cost reference
+    # counting per entry.
+    verts, normals, centroids, radii, areas = a.verts, a.normals, a.centroids, a.radii, a.areas
+    moments, pts_hi, pts_near, pts_mid = a.moments, a.pts_hi, a.pts_near, a.pts_mid
+    i_verts, i_normals, i_centroids = a.image_verts, a.image_normals, a.image_centroids
+    i_moments, i_pts_hi = a.image_moments, a.image_pts_hi
+    i_pts_near, i_pts_mid = a.image_pts_near, a.image_pts_mid
+    w_hi, w_near, w_mid, self_s, self_w = a.w_hi, a.w_near, a.w_mid, a.self_s, a.self_w
+    touch, near, mid, far = a.touch, a.near, a.mid, a.far
+    image = a.grounded
     if rule != PAIR_RULE:
         for t in range(count):
             i = i0 + t * di
@@ -147,7 +153,7 @@ def _single_layer_entries(i0, di, j0, dj, count, out, a, rule):
         i = i0 + t * di
         j = j0 + t * dj
         s2 = far2 * (radii[i] + radii[j]) ** 2
-        # the far value beyond `far` inline, as kernels._fill_row does: the call below
+        # the far value beyond `far` inline, as dense._fill_row does: the call below
         # costs ~50 times more (its array arguments are reference-counted on every call)
         a0 = centroids[i, 0] - centroids[j, 0]
         a1 = centroids[i, 1] - centroids[j, 1]
@@ -156,9 +162,10 @@ def _single_layer_entries(i0, di, j0, dj, count, out, a, rule):
         if d2 > s2:
             v = areas[i] * areas[j] * moment_pair(a0, a1, a2, d2, moments, i, moments, j)
         else:
-            v = panel_pair_integral(i, j, verts, normals, centroids, radii, areas, moments,
-                                    pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, self_s,
-                                    self_w, touch, near, mid, far)
+            v = pair_integral(i, j, verts, normals, centroids, radii, areas, moments, pts_hi,
+                              pts_near, pts_mid, verts, normals, centroids, radii, areas,
+                              moments, pts_hi, pts_near, pts_mid, w_hi, w_near, w_mid, self_s,
+                              self_w, touch, near, mid, far, True)
         if image:
             a0 = centroids[i, 0] - i_centroids[j, 0]
             a1 = centroids[i, 1] - i_centroids[j, 1]
@@ -203,9 +210,9 @@ def block_rules(blocks, row_points, row_radii, col_points, col_radii, near, mid,
 
 
 @njit(parallel=True, cache=True)
-def fill_dense_blocks(blocks, rules, offsets, data, kargs, symmetric):
-    """Write block b (row-major) at data[offsets[b]:] for every row of blocks (k, 4), by its
-    quadrature rule rules[b].
+def fill_dense_blocks(blocks, rules, offsets, data, operator, symmetric):
+    """Write block b (row-major) of `operator` (data.SingleLayer or data.NormalField) at
+    data[offsets[b]:] for every row of blocks (k, 4), by its quadrature rule rules[b].
 
     In a symmetric operator a block on the diagonal (row0 == col0) is filled on and below its
     diagonal and mirrored, so it is exactly symmetric, as the dense matrix is."""
@@ -214,7 +221,7 @@ def fill_dense_blocks(blocks, rules, offsets, data, kargs, symmetric):
         off = offsets[b]
         diagonal = symmetric and r0 == c0
         for i in range(m):
-            block_entries(r0 + i, 0, c0, 1, i + 1 if diagonal else n, data[off + i * n:], kargs,
+            block_entries(r0 + i, 0, c0, 1, i + 1 if diagonal else n, data[off + i * n:], operator,
                      rules[b])
         if diagonal:
             for i in range(m):

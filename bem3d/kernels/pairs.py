@@ -51,9 +51,11 @@ def moment_pair(a, b, c, d2, qk, k, ql, l):
 
 @njit(cache=True, inline="always")
 def pair_integral(k, l, vk, nk, ck, rk, ak, qk, hk, mk, fk, vl, nl, cl, rl, al, ql, hl, ml, fl,
-          w_hi, w_near, w_mid, self_s, self_w, touch, near, mid, far, same):
-    # panel k of one set against panel l of another (or the same set, same=True); q are the
-    # second moments, h, m, f the touch, near and mid rule points of each set
+                  w_hi, w_near, w_mid, self_s, self_w, touch, near, mid, far, same):
+    """Galerkin integral (m^3) of panel k of one set against panel l of another (or the same
+    set, same=True), by the rule of panel_pair_integral; the arrays of data.SingleLayer,
+    unpacked (q: second moments, h, m, f: touch, near and mid rule
+    points of each set), so that compiled loops read no structure per entry."""
     a = ck[k, 0] - cl[l, 0]
     b = ck[k, 1] - cl[l, 1]
     c = ck[k, 2] - cl[l, 2]
@@ -78,19 +80,21 @@ def pair_integral(k, l, vk, nk, ck, rk, ak, qk, hk, mk, fk, vl, nl, cl, rl, al, 
     return al[l] * _outer_closed_sum(ml[l], w_near, vk[k], nk[k])
 
 
-@njit(cache=True, inline="always")
-def panel_pair_integral(k, l, verts, normals, centroids, radii, areas, moments,
-                        pts_hi, w_hi, pts_near, w_near, pts_mid, w_mid, self_s, self_w,
-                        touch, near, mid, far):
-    """Integral over panels k and l of 1/|x - y| dA_x dA_y (m^3), rule chosen by proximity.
+@njit(cache=True)
+def panel_pair_integral(k, l, data):
+    """Integral over panels k and l of data (data.SingleLayer) of 1/|x - y| dA_x dA_y (m^3),
+    rule chosen by proximity.
 
     Distance is measured in units of s = radius_k + radius_l between centroids:
     beyond `far` the centroids' value with the second-moment term (moment_pair); beyond `mid`
     the low (mid) rule on both; beyond `near` the
     near rule on both; closer, a point rule on the smaller panel and the closed form on the
     larger (the graded rule inside `touch`); a panel with itself by `self_integral` with edge
-    rule self_s, self_w.
+    rule self_s, self_w. The matrix kernels call pair_integral on the unpacked arrays.
     """
-    return pair_integral(k, l, verts, normals, centroids, radii, areas, moments, pts_hi, pts_near,
-                 pts_mid, verts, normals, centroids, radii, areas, moments, pts_hi, pts_near,
-                 pts_mid, w_hi, w_near, w_mid, self_s, self_w, touch, near, mid, far, True)
+    d = data
+    return pair_integral(k, l, d.verts, d.normals, d.centroids, d.radii, d.areas, d.moments,
+                         d.pts_hi, d.pts_near, d.pts_mid, d.verts, d.normals, d.centroids,
+                         d.radii, d.areas, d.moments, d.pts_hi, d.pts_near, d.pts_mid, d.w_hi,
+                         d.w_near, d.w_mid, d.self_s, d.self_w, d.touch, d.near, d.mid, d.far,
+                         True)

@@ -1,5 +1,5 @@
 """Fields of panel charges at points: potential, field and winding number at any points, and
-the normal field at the test points of dielectric interfaces."""
+the normal field at a test panel's points (an entry of the dielectric interfaces' rows)."""
 
 import math
 
@@ -9,15 +9,20 @@ from bem3d.kernels.triangle import triangle_integrals
 
 
 @njit(parallel=True, cache=True, error_model="numpy", fastmath=True)
-def evaluate_points(points, sigma, closed, verts, normals, centroids, radii, areas,
-                    pts_mid, w_mid, pts_near, w_near, near, mid, far, phi, grad, winding):
+def evaluate_points(points, sigma, closed, sources, phi, grad, winding):
     """Potential and field integrals of panel charges sigma (n_panels, k) at points (m, 3).
 
-    Fills phi (m, k) with sum_l sigma_l int_Tl dA/|x - y| (C/m) and grad (m, k, 3) with
-    sum_l sigma_l int_Tl (x - y)/|x - y|^3 dA (C/m^2); the caller divides by 4 pi eps.
-    winding (m,) gets the winding number of the panels whose `closed` flag is 1 (1 inside a
-    closed conductor, 0 outside). Distances in units of the panel radius: one point beyond
-    `far`, the mid rule beyond `mid`, the near rule beyond `near`, the closed form inside."""
+    sources: data.PointSources. Fills phi (m, k) with sum_l sigma_l int_Tl dA/|x - y| (C/m)
+    and grad (m, k, 3) with sum_l sigma_l int_Tl (x - y)/|x - y|^3 dA (C/m^2); the caller
+    divides by 4 pi eps. winding (m,) gets the winding number of the panels whose `closed`
+    flag is 1 (1 inside a closed conductor, 0 outside). Distances in units of the panel
+    radius: one point beyond `far`, the mid rule beyond `mid`, the near rule beyond `near`,
+    the closed form inside."""
+    verts, normals, centroids, radii = (sources.verts, sources.normals, sources.centroids,
+                                        sources.radii)
+    areas, pts_mid, w_mid, pts_near, w_near = (sources.areas, sources.pts_mid, sources.w_mid,
+                                               sources.pts_near, sources.w_near)
+    near, mid, far = sources.near, sources.mid, sources.far
     m = points.shape[0]
     n = areas.shape[0]
     k = sigma.shape[1]
@@ -118,7 +123,8 @@ def normal_field_entry(i, l, points, weights, point_normals, verts, normals, cen
     """sum_q weights_q n_i . int_Tl (x_iq - y)/|x_iq - y|^3 dA_y (dimensionless): the normal
     field of a unit charge density on panel l, averaged over test points x_iq (m, q, 3) with
     unit normal n_i. A point on a panel gets the principal value (its own panel contributes
-    no normal field). Rules by distance in panel radii as in evaluate_points."""
+    no normal field). Rules by distance in panel radii as in evaluate_points; the arrays of
+    data.NormalField, unpacked, as compiled loops take them."""
     m0, m1, m2 = point_normals[i, 0], point_normals[i, 1], point_normals[i, 2]
     rl = radii[l]
     total = 0.0
@@ -142,14 +148,3 @@ def normal_field_entry(i, l, points, weights, point_normals, verts, normals, cen
                 wq = w_near
             total += weights[p] * areas[l] * points_normal_field(x0, x1, x2, m0, m1, m2, q, wq)
     return total
-
-
-@njit(parallel=True, cache=True, error_model="numpy")
-def assemble_normal_field(out, points, weights, point_normals, verts, normals, centroids, radii,
-                          areas, pts_mid, w_mid, pts_near, w_near, near, mid, far):
-    """out[i, l] = normal_field_entry(i, l, ...) for every test panel i and source panel l."""
-    for i in prange(points.shape[0]):
-        for l in range(areas.shape[0]):
-            out[i, l] = normal_field_entry(i, l, points, weights, point_normals, verts, normals,
-                                           centroids, radii, areas, pts_mid, w_mid, pts_near,
-                                           w_near, near, mid, far)

@@ -22,9 +22,11 @@ from bem3d.base.constants import EPS0
 from bem3d.base.errors import ResourceError
 from bem3d.geometry.panels import Panels
 from bem3d.kernels import aca, entries, products
+from bem3d.kernels.data import SingleLayer
 from bem3d.kernels.schwarz import coarse_matrix, subdomain_inverses
 from bem3d.operators.cluster import ClusterTree, block_partition
-from bem3d.operators.rules import PairRules, image_arrays, kernel_arguments
+from bem3d.operators.kernel_data import kernel_bytes, single_layer
+from bem3d.operators.rules import PairRules
 
 #: Room (float64 numbers) for the ACA factors of one batch of admissible blocks.
 BATCH_NUMBERS = 2**24
@@ -61,15 +63,6 @@ class Compression:
         return asdict(self)
 
 
-def entry_arguments(panels, rules, ground_z=None):
-    """The tuple hkernels' entry function takes: kernel_arguments of the panels, then the
-    image_arrays of their mirror images in the plane z = ground_z (m), and whether to use them
-    (without a plane the panels' own arrays stand in, unused)."""
-    args = kernel_arguments(panels, rules)
-    image = args if ground_z is None else kernel_arguments(panels.mirrored(ground_z), rules)
-    return args + image_arrays(image) + (ground_z is not None,)
-
-
 def _ranges(tree, pairs, columns=None):
     # (row0, rows, col0, cols) of cluster pairs, in cluster numbering (columns: the column
     # tree when it is not the row tree)
@@ -90,20 +83,18 @@ def split_blocks(tree, compression, columns=None):
     return np.concatenate((near, far[small])), far[~small]
 
 
-def block_rules(blocks, kargs):
-    """The quadrature rule of each admissible block (entries.block_rules), for the
-    single-layer or the normal-field argument tuple kargs."""
-    if len(kargs) == entries.SINGLE_LAYER_ARGUMENTS:
-        centroids, radii, near, mid, far = kargs[2], kargs[3], kargs[15], kargs[16], kargs[17]
-        return entries.block_rules(blocks, centroids[:, None, :], radii, centroids, radii,
-                                    near, mid, far)
-    points, centroids, radii, near, mid, far = (kargs[0], kargs[5], kargs[6], kargs[12],
-                                                kargs[13], kargs[14])
-    return entries.block_rules(blocks, points, np.zeros(len(points)), centroids, radii,
-                                near, mid, far)
+def block_rules(blocks, kernel_data):
+    """The quadrature rule of each admissible block (kernels.entries.block_rules) of the
+    single-layer or the normal-field operator (kernels.data.SingleLayer or NormalField)."""
+    d = kernel_data
+    if isinstance(d, SingleLayer):
+        return entries.block_rules(blocks, d.centroids[:, None, :], d.radii, d.centroids,
+                                   d.radii, d.near, d.mid, d.far)
+    return entries.block_rules(blocks, d.test_points, np.zeros(len(d.test_points)),
+                               d.centroids, d.radii, d.near, d.mid, d.far)
 
 
-def estimate_lowrank(far, compression, kargs):
+def estimate_lowrank(far, compression, kernel_data):
     """Estimated numbers of the low-rank factors of the blocks far: the ranks of a sample of
     blocks of each size class (log2 of rows*cols) stand for the class."""
     if len(far) == 0:
@@ -115,7 +106,7 @@ def estimate_lowrank(far, compression, kargs):
                    min(max(2, RANK_SAMPLES * np.sum(size_class == c) // len(far)),
                        np.sum(size_class == c)), replace=False)
         for c in np.unique(size_class)]))
-    ranks, _ = _compress(far[pick], compression, kargs)
+    ranks, _ = _compress(far[pick], compression, kernel_data)
     per_number = np.zeros(size_class.max() + 1)
     for c in np.unique(size_class):
         sample = size_class[pick] == c
@@ -126,14 +117,14 @@ def estimate_lowrank(far, compression, kargs):
     return int(np.sum(per_number[size_class] * far[:, 1] * far[:, 3]))
 
 
-def assemble_blocks(near, far, compression, kargs, dense_numbers, memory_limit, symmetric):
+def assemble_blocks(near, far, compression, kernel_data, dense_numbers, memory_limit, symmetric):
     """Compress the admissible blocks far, fill the near ones: the block arrays of an
     operator (dense_blocks, dense_offsets, dense_data, lr_blocks, lr_offsets, lr_ranks,
-    lr_data). memory_limit (bytes) is checked as the low-rank factors come in, so a run that
+    lr_data) from its kernel_data (kernels.data.SingleLayer or NormalField). memory_limit (bytes) is checked as the low-rank factors come in, so a run that
     outgrows its estimate stops cleanly instead of being killed."""
     item = STORAGE().itemsize
     budget = None if memory_limit is None else memory_limit - item * dense_numbers
-    ranks, pieces = _compress(far, compression, kargs, budget)
+    ranks, pieces = _compress(far, compression, kernel_data, budget)
     low = ranks > 0
     lr_blocks = far[low]
     lr_ranks = ranks[low]
@@ -141,7 +132,7 @@ def assemble_blocks(near, far, compression, kargs, dense_numbers, memory_limit, 
     # blocks that did not compress below the break-even rank join the dense leaves
     dense_blocks = np.concatenate((near, far[ranks < 0]))
     dense_rules = np.concatenate((np.full(len(near), entries.PAIR_RULE, np.int64),
-                                  block_rules(far[ranks < 0], kargs)))
+                                  block_rules(far[ranks < 0], kernel_data)))
     dense_sizes = dense_blocks[:, 1] * dense_blocks[:, 3]
     need = item * (lr_data.size + dense_sizes.sum())
     if memory_limit is not None and need > memory_limit:
@@ -149,8 +140,8 @@ def assemble_blocks(near, far, compression, kargs, dense_numbers, memory_limit, 
                             f"than the {memory_limit / 2**30:.1f} GiB allowed")
     dense_offsets = np.concatenate(([0], np.cumsum(dense_sizes))).astype(np.int64)
     dense_data = np.empty(dense_offsets[-1], STORAGE)
-    entries.fill_dense_blocks(dense_blocks, dense_rules, dense_offsets, dense_data, kargs,
-                               symmetric)
+    entries.fill_dense_blocks(dense_blocks, dense_rules, dense_offsets, dense_data, kernel_data,
+                              symmetric)
     lr_offsets = np.concatenate(
         ([0], np.cumsum(lr_ranks * (lr_blocks[:, 1] + lr_blocks[:, 3])))).astype(np.int64)
     return dict(dense_blocks=dense_blocks, dense_offsets=dense_offsets, dense_data=dense_data,
@@ -163,12 +154,12 @@ def _room(blocks, max_rank):
     return np.minimum(max_rank, (m * n) // (m + n))
 
 
-def _compress(blocks, compression, kargs, budget=None):
+def _compress(blocks, compression, kernel_data, budget=None):
     """Ranks (-1: store dense) and compressed factors of admissible blocks, in batches.
 
     budget: bytes the factors may take; passing it stops the run with ResourceError."""
     kmax = _room(blocks, compression.max_rank)
-    rules = block_rules(blocks, kargs)
+    rules = block_rules(blocks, kernel_data)
     ranks = np.empty(len(blocks), np.int64)
     pieces, start = [], 0
     eps = compression.tolerance
@@ -181,7 +172,7 @@ def _compress(blocks, compression, kargs, budget=None):
         # each thread runs its own small LAPACK calls: a threaded BLAS inside would oversubscribe
         with threadpool_limits(limits=1, user_api="blas"):
             aca.compress_blocks(batch, rules[start:stop], slots, scratch, ranks[start:stop],
-                                     ACA_SHARE * eps, SVD_SHARE * eps, kargs)
+                                     ACA_SHARE * eps, SVD_SHARE * eps, kernel_data)
         r = np.maximum(ranks[start:stop], 0)
         offsets = np.concatenate(([0], np.cumsum(r * (batch[:, 1] + batch[:, 3]))))
         piece = np.empty(offsets[-1], STORAGE)
@@ -238,9 +229,9 @@ class HMatrixPlan:
         self.n = len(panels)
         self.panels = Panels(panels.vertices[self.tree.perm], panels.owner[self.tree.perm],
                              panels.names)
-        self.kargs = entry_arguments(self.panels, rules, ground_z)
+        self.kernel_data = single_layer(self.panels, rules, ground_z)
         self.dense_numbers = int(np.sum(self.near[:, 1] * self.near[:, 3]))
-        self.lowrank_numbers = estimate_lowrank(self.far, compression, self.kargs)
+        self.lowrank_numbers = estimate_lowrank(self.far, compression, self.kernel_data)
 
     @property
     def dense_bytes(self):
@@ -259,11 +250,11 @@ class HMatrixPlan:
     def work_bytes(self, n_rhs, subdomain_size):
         """Bytes beside the operator: the kernel arguments (freed after assembly), the
         preconditioner on subdomains of <= subdomain_size panels, and the solver's vectors."""
-        kargs = sum(a.nbytes for a in self.kargs if isinstance(a, np.ndarray))
+        arrays = kernel_bytes(self.kernel_data)
         sizes = np.diff(self.tree.partition(subdomain_size))
         schwarz = 8 * (np.sum(sizes * sizes) + 2 * len(sizes) ** 2)
         vectors = 8 * self.n * n_rhs * (numba.get_num_threads() + 10)
-        return int(kargs + schwarz + vectors)
+        return int(arrays + schwarz + vectors)
 
 
 class BlockProducts:
@@ -333,7 +324,7 @@ class HMatrixOperator(BlockProducts, LinearOperator):
         """Compress the admissible blocks, fill the others. memory_limit (bytes) for the
         operator is checked as the low-rank factors come in, so a run that outgrows its
         estimate stops cleanly instead of being killed."""
-        blocks = assemble_blocks(plan.near, plan.far, plan.compression, plan.kargs,
+        blocks = assemble_blocks(plan.near, plan.far, plan.compression, plan.kernel_data,
                                  plan.dense_numbers, memory_limit, True)
         t = plan.tree
         return cls(dict(perm=t.perm, tree_start=t.start, tree_end=t.end, tree_child=t.child,
