@@ -30,8 +30,8 @@ PAIR_RULE, NEAR_RULE, MID_RULE, ONE_POINT = 0, 1, 2, 3
 
 def block_entries(i0, di, j0, dj, count, out, operator, rule):
     """out[t] = entry (i0 + t di, j0 + t dj) of the operator that `operator` (data.SingleLayer
-    or data.NormalField) describes, t < count, by the block's quadrature `rule` (one of PAIR_RULE ... ONE_POINT):
-    compiled to _single_layer_entries or _field_entries."""
+    or data.NormalField) describes, t < count, by the block's quadrature `rule` (one of
+    PAIR_RULE ... ONE_POINT): compiled to _single_layer_entries or _field_entries."""
     raise NotImplementedError("only callable from compiled code")
 
 

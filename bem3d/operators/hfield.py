@@ -1,8 +1,8 @@
 """Compressed normal-field operator of dielectric interfaces: a general (nonsymmetric) H-matrix.
 
 Rows are interface panels, each tested over its own rule points; columns are source panels.
-Entry (i, l) is kernels.points.normal_field_entry, less that of l's mirror image above a grounded
-plane, exactly as the dense dielectric rows. The block partition pairs a row cluster tree
+Entry (i, l) is kernels.points.normal_field_entry, less that of l's mirror image above a
+grounded plane, exactly as the dense dielectric rows. The block partition pairs a row cluster tree
 with a column cluster tree; admissible blocks get the same ACA and recompression as the
 single-layer operator (hmatrix), the others are stored dense.
 """

@@ -120,8 +120,9 @@ def estimate_lowrank(far, compression, kernel_data):
 def assemble_blocks(near, far, compression, kernel_data, dense_numbers, memory_limit, symmetric):
     """Compress the admissible blocks far, fill the near ones: the block arrays of an
     operator (dense_blocks, dense_offsets, dense_data, lr_blocks, lr_offsets, lr_ranks,
-    lr_data) from its kernel_data (kernels.data.SingleLayer or NormalField). memory_limit (bytes) is checked as the low-rank factors come in, so a run that
-    outgrows its estimate stops cleanly instead of being killed."""
+    lr_data) from its kernel_data (kernels.data.SingleLayer or NormalField). memory_limit
+    (bytes) is checked as the low-rank factors come in, so a run that outgrows its estimate
+    stops cleanly instead of being killed."""
     item = STORAGE().itemsize
     budget = None if memory_limit is None else memory_limit - item * dense_numbers
     ranks, pieces = _compress(far, compression, kernel_data, budget)

@@ -1,7 +1,7 @@
 """Potential, field and winding number of panel charges at any points.
 
-The same triangle integrals as the operator (kernels.evaluate_points): closed forms near a
-panel, Gauss rules farther out, one point per panel far away.
+The same triangle integrals as the operator (kernels.points.evaluate_points): closed forms near
+a panel, Gauss rules farther out, one point per panel far away.
 """
 
 import math

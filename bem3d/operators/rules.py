@@ -8,7 +8,7 @@ class PairRules:
     """How panel-pair integrals are computed, by centroid distance in units of r_k + r_l.
 
     Beyond `far`: the centroids' value with the panels' second moments
-    (kernels.moment_pair). Beyond `mid`: a degree-`mid_degree` rule on both;
+    (kernels.pairs.moment_pair). Beyond `mid`: a degree-`mid_degree` rule on both;
     beyond `near`: the degree-`near_degree` rule on both.
     Closer: a point rule on the smaller panel and the closed-form triangle potential over the
     larger: degree `near_degree`, or inside `touch` (panels that share a corner or edge) the
