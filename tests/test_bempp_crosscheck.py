@@ -14,8 +14,9 @@ import pytest
 
 from bem3d.geometry import shapes
 from bem3d.geometry.panels import Panels
-from bem3d.kernels.pairs import assemble_dense
-from bem3d.operators.rules import PairRules, kernel_arguments
+from bem3d.kernels.dense import assemble_dense
+from bem3d.operators.kernel_data import single_layer
+from bem3d.operators.rules import PairRules
 
 bempp = pytest.importorskip("bempp_cl.api")
 
@@ -36,7 +37,7 @@ def test_matrix_matches_bempp_dp0_single_layer(mesh):
     points, triangles = mesh
     panels = Panels.from_arrays(points, triangles, np.zeros(len(triangles), int), ("body",))
     ours = np.empty((len(panels),) * 2)
-    assemble_dense(ours, *kernel_arguments(panels, PairRules()))
+    assemble_dense(ours, single_layer(panels, PairRules()))
     ours /= 4 * math.pi
     theirs = bempp_matrix(points, triangles)
     rel = np.abs(ours - theirs) / np.abs(theirs)

@@ -19,7 +19,7 @@ from bem3d.base.errors import ResourceError
 from bem3d.geometry import shapes
 from bem3d.geometry.bodies import DielectricBody
 from bem3d.geometry.panels import Panels
-from bem3d.kernels.blocks import MID_RULE, NEAR_RULE, ONE_POINT, PAIR_RULE
+from bem3d.kernels.entries import MID_RULE, NEAR_RULE, ONE_POINT, PAIR_RULE
 from bem3d.operators.cluster import ClusterTree, block_partition
 from bem3d.operators.hfield import FieldOperator
 from bem3d.operators.hmatrix import Compression, block_rules
@@ -132,15 +132,15 @@ def test_sphere_in_a_shell_converges_to_the_closed_form():
 def test_no_field_block_rule_is_less_accurate_than_the_dense_rule_of_its_closest_pair(
         two_in_a_box, ground_z):
     """The dense interface rows pick the rule of each test point and source panel by their
-    distance in units of the source's radius (dielectric.normal_field_arguments: near, mid,
+    distance in units of the source's radius (kernel_data.normal_field: near, mid,
     far); a block's one rule must be that of its closest pair, or a more accurate one."""
     cond, bodies = two_in_a_box
     system = plan_dielectrics(cond, bodies, ground_z=ground_z)
     plan = DielectricPlan(system, compression=SMALL_LEAVES).field
-    kargs = plan.kargs
-    points, centroids, radii, near, mid, far = (kargs[0], kargs[5], kargs[6], kargs[12],
-                                                kargs[13], kargs[14])
-    rules = block_rules(plan.far, kargs)
+    d = plan.kernel_data
+    points, centroids, radii = d.test_points, d.centroids, d.radii
+    near, mid, far = d.near, d.mid, d.far
+    rules = block_rules(plan.far, plan.kernel_data)
     for (r0, m, c0, n), rule in zip(plan.far, rules):
         x = points[r0:r0 + m].reshape(-1, 3)
         q = np.min(np.linalg.norm(x[:, None] - centroids[None, c0:c0 + n], axis=-1)
@@ -151,22 +151,24 @@ def test_no_field_block_rule_is_less_accurate_than_the_dense_rule_of_its_closest
     assert len(set(rules.tolist())) >= 2
 
 
-def field_rule_block(kargs, block, rule):
+def field_rule_block(field, block, rule):
     """Block (r0, rows, c0, cols) of the normal-field operator by the block's rule (numpy),
-    from its argument tuple (hfield.field_arguments, cluster order): each test panel's points
+    from its kernel data (kernel_data.normal_field, cluster order): each test panel's points
     against the sources' centroids or mid or near rule points, less the images' if any."""
     r0, m, c0, n = block
-    x, w, normals = kargs[0][r0:r0 + m], kargs[1], kargs[2][r0:r0 + m]
+    x, w = field.test_points[r0:r0 + m], field.test_weights
+    normals = field.test_normals[r0:r0 + m]
 
     def sources(centroids, areas, pts_mid, pts_near):
         y, wy = {ONE_POINT: (centroids[c0:c0 + n, None, :], np.ones(1)),
-                 MID_RULE: (pts_mid[c0:c0 + n], kargs[9]),
-                 NEAR_RULE: (pts_near[c0:c0 + n], kargs[11])}[rule]
+                 MID_RULE: (pts_mid[c0:c0 + n], field.w_mid),
+                 NEAR_RULE: (pts_near[c0:c0 + n], field.w_near)}[rule]
         return normal_field_block(x, w, normals, y, wy, areas[c0:c0 + n])
 
-    out = sources(kargs[5], kargs[7], kargs[8], kargs[10])
-    if kargs[-1]:
-        out -= sources(kargs[17], kargs[19], kargs[20], kargs[21])
+    out = sources(field.centroids, field.areas, field.pts_mid, field.pts_near)
+    if field.grounded:
+        out -= sources(field.image_centroids, field.image_areas, field.image_pts_mid,
+                       field.image_pts_near)
     return out
 
 
@@ -184,11 +186,11 @@ def test_normal_field_blocks_are_within_their_tolerance(two_in_a_box, ground_z, 
     exact = np.empty((len(system.interfaces), system.n_panels))
     _interface_rows(exact, system, union_panels(system))
     rows, cols = plan.field.rows.perm, plan.field.columns.perm
-    for block, rule in zip(plan.field.far, block_rules(plan.field.far, plan.field.kargs)):
+    for block, rule in zip(plan.field.far, block_rules(plan.field.far, plan.field.kernel_data)):
         if rule != PAIR_RULE:
             r0, m, c0, n = block
             exact[np.ix_(rows[r0:r0 + m], cols[c0:c0 + n])] = field_rule_block(
-                plan.field.kargs, block, rule)
+                plan.field.kernel_data, block, rule)
     for (r0, m, c0, n), r, off in zip(field.lr_blocks, field.lr_ranks, field.lr_offsets):
         u = field.lr_data[off:off + m * r].reshape(m, r)
         v = field.lr_data[off + m * r:off + (m + n) * r].reshape(n, r)

@@ -17,7 +17,7 @@ from conftest import make_panels
 from scipy import integrate
 
 from bem3d.geometry import shapes
-from bem3d.kernels.pairs import triangle_integrals
+from bem3d.kernels.triangle import triangle_integrals
 from bem3d.operators.points import evaluate
 from bem3d.post.energy import energy_balance
 from bem3d.post.fields import conductor_forces, surface_fields, virtual_work_force

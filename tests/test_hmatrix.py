@@ -2,7 +2,7 @@
 
 The dense backend is the reference here: its matrix agrees with bempp-cl's DP0 single layer
 (test_bempp_crosscheck.py) and its capacitances with published values (test_capacitance.py).
-Admissible blocks take one quadrature rule for all their pairs (hkernels.block_rules); their
+Admissible blocks take one quadrature rule for all their pairs (kernels.entries.block_rules); their
 entries are checked against the Galerkin integrals themselves, computed in numpy with a
 degree-8 product rule (Stroud 1971 conical product, checked against exact monomial integrals
 in test_quadrature.py), and ACA against the block's own entries recomputed in numpy.
@@ -15,8 +15,8 @@ import pytest
 from conftest import assert_admissible, covariances, make_panels, moment_rule_block, pair_rule_block
 
 from bem3d.geometry import shapes
-from bem3d.kernels.blocks import MID_RULE, NEAR_RULE, ONE_POINT, PAIR_RULE
-from bem3d.kernels.pairs import assemble_dense
+from bem3d.kernels.dense import assemble_dense
+from bem3d.kernels.entries import MID_RULE, NEAR_RULE, ONE_POINT, PAIR_RULE
 from bem3d.operators.cluster import ClusterTree, block_partition
 from bem3d.operators.dense import DenseOperator
 from bem3d.operators.hmatrix import (
@@ -26,8 +26,9 @@ from bem3d.operators.hmatrix import (
     _compress,
     block_rules,
 )
+from bem3d.operators.kernel_data import single_layer
 from bem3d.operators.quadrature import map_points, triangle_rule
-from bem3d.operators.rules import PairRules, kernel_arguments
+from bem3d.operators.rules import PairRules
 from bem3d.solve.conductors import solve_panels
 
 #: Degree of the triangle rule each point block rule puts on both panels (operators.PairRules).
@@ -47,7 +48,7 @@ def three():
 @pytest.fixture(scope="module")
 def dense_matrix(three):
     matrix = np.empty((len(three),) * 2)
-    assemble_dense(matrix, *kernel_arguments(three, PairRules()))
+    assemble_dense(matrix, single_layer(three, PairRules()))
     return matrix
 
 
@@ -84,7 +85,7 @@ def test_no_block_rule_is_less_accurate_than_the_dense_rule_of_its_closest_pair(
     r_k + r_l (operators.PairRules); a block's one rule must be that of its closest pair, or
     a more accurate one (a lower rule number), for every block."""
     plan = HMatrixPlan(three, pr)
-    p, rules = plan.panels, block_rules(plan.far, plan.kargs)
+    p, rules = plan.panels, block_rules(plan.far, plan.kernel_data)
     for (r0, m, c0, n), rule in zip(plan.far, rules):
         d = np.linalg.norm(p.centroids[r0:r0 + m, None] - p.centroids[None, c0:c0 + n], axis=-1)
         q = np.min(d / (p.radii[r0:r0 + m, None] + p.radii[None, c0:c0 + n]))
@@ -104,10 +105,10 @@ def test_block_rules_are_closer_to_the_integrals_than_the_dense_entries(three, p
     1.3e-4; far 8: 1.1e-7 against 6.5e-4 and 5.8e-6 against 7.3e-4."""
     plan = HMatrixPlan(three, pr)
     dense_matrix = np.empty((len(three),) * 2)
-    assemble_dense(dense_matrix, *kernel_arguments(three, pr))
+    assemble_dense(dense_matrix, single_layer(three, pr))
     perm, p = plan.tree.perm, plan.panels
     worst = {NEAR_RULE: 0.0, MID_RULE: 0.0}
-    for block, rule in zip(plan.far, block_rules(plan.far, plan.kargs)):
+    for block, rule in zip(plan.far, block_rules(plan.far, plan.kernel_data)):
         r0, m, c0, n = block
         dense = dense_matrix[np.ix_(perm[r0:r0 + m], perm[c0:c0 + n])]
         if rule == PAIR_RULE:
@@ -163,9 +164,9 @@ def test_aca_blocks_are_within_their_tolerance(three, dense_matrix, tolerance):
     in the Frobenius norm, block by block."""
     plan = HMatrixPlan(three, compression=Compression(tolerance=tolerance))
     blocks = plan.far
-    ranks, pieces = _compress(blocks, plan.compression, plan.kargs)
+    ranks, pieces = _compress(blocks, plan.compression, plan.kernel_data)
     data, pos, checked = np.concatenate(pieces), 0, 0
-    for block, rule, r in zip(blocks, block_rules(blocks, plan.kargs), ranks):
+    for block, rule, r in zip(blocks, block_rules(blocks, plan.kernel_data), ranks):
         if r <= 0:
             continue                       # stored dense: exact
         r0, m, c0, n = block
@@ -185,7 +186,7 @@ def test_product_and_diagonal_match_the_dense_operator(three, plan):
     dense = DenseOperator(three)
     h = HMatrixOperator.assemble(HMatrixPlan(three, compression=Compression(tolerance=1e-6)))
     reference, perm = dense.matrix.copy(), plan.tree.perm
-    for block, rule in zip(plan.far, block_rules(plan.far, plan.kargs)):
+    for block, rule in zip(plan.far, block_rules(plan.far, plan.kernel_data)):
         if rule == PAIR_RULE:
             continue
         r0, m, c0, n = block

@@ -14,9 +14,11 @@ from conftest import covariances, pair_rule_block
 from scipy import integrate
 
 from bem3d.geometry.panels import Panels
-from bem3d.kernels.pairs import moment_pair, panel_pair_integral, triangle_potential
+from bem3d.kernels.pairs import moment_pair, panel_pair_integral
+from bem3d.kernels.triangle import triangle_potential
+from bem3d.operators.kernel_data import single_layer
 from bem3d.operators.quadrature import map_points, triangle_rule
-from bem3d.operators.rules import PairRules, kernel_arguments
+from bem3d.operators.rules import PairRules
 
 TRI = np.array([[0.0, 0.0, 0.0], [1.0, 0.0, 0.0], [0.3, 0.8, 0.0]])
 NORMAL = np.array([0.0, 0.0, 1.0])
@@ -135,10 +137,10 @@ def test_galerkin_pair_integrals_match_subdivided_reference(l, rel):
         rate = (r2 - r3) / (r3 - r4)
         assert 3.5 < rate < 9.0
         ref = r4 + (r4 - r3) / (rate - 1)
-    args = kernel_arguments(panels, PairRules())
-    got = panel_pair_integral(0, l, *args)
+    data = single_layer(panels, PairRules())
+    got = panel_pair_integral(0, l, data)
     assert got == pytest.approx(ref, rel=rel)
-    assert panel_pair_integral(l, 0, *args) == pytest.approx(got, rel=1e-14)
+    assert panel_pair_integral(l, 0, data) == pytest.approx(got, rel=1e-14)
 
 
 def test_panel_moments_are_the_covariances_about_the_centroids():

@@ -7,8 +7,9 @@ from scipy.sparse.linalg import LinearOperator
 
 from bem3d.base.constants import EPS0
 from bem3d.base.errors import ResourceError
-from bem3d.kernels.pairs import assemble_dense, subtract_images
-from bem3d.operators.rules import PairRules, image_arrays, kernel_arguments
+from bem3d.kernels.dense import assemble_dense
+from bem3d.operators.kernel_data import single_layer
+from bem3d.operators.rules import PairRules
 
 
 def dense_bytes(n_panels):
@@ -31,11 +32,7 @@ class DenseOperator(LinearOperator):
                 f"dense matrix for {n} panels needs {need / 2**30:.1f} GiB, more than the "
                 f"{memory_limit / 2**30:.1f} GiB allowed; use fewer panels")
         matrix = np.empty((n, n))
-        args = kernel_arguments(panels, rules)
-        assemble_dense(matrix, *args)
-        if ground_z is not None:
-            image = kernel_arguments(panels.mirrored(ground_z), rules)
-            subtract_images(matrix, *args, *image_arrays(image))
+        assemble_dense(matrix, single_layer(panels, rules, ground_z))
         matrix *= 1.0 / (4.0 * math.pi * EPS0 * eps_r)
         self.matrix = matrix
         self.rules = rules

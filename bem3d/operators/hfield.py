@@ -1,8 +1,8 @@
 """Compressed normal-field operator of dielectric interfaces: a general (nonsymmetric) H-matrix.
 
 Rows are interface panels, each tested over its own rule points; columns are source panels.
-Entry (i, l) is kernels.normal_field_entry, less that of l's mirror image above a grounded
-plane, exactly as the dense dielectric rows. The block partition pairs a row cluster tree
+Entry (i, l) is kernels.points.normal_field_entry, less that of l's mirror image above a
+grounded plane, exactly as the dense dielectric rows. The block partition pairs a row cluster tree
 with a column cluster tree; admissible blocks get the same ACA and recompression as the
 single-layer operator (hmatrix), the others are stored dense.
 """
@@ -17,29 +17,21 @@ from bem3d.operators.hmatrix import (
     estimate_lowrank,
     split_blocks,
 )
-
-
-def field_arguments(direct, image=None):
-    """The tuple hkernels' entry function takes for the normal field: `direct`, the arguments
-    of kernels.normal_field_entry after (i, l), then the image sources' corners, normals,
-    centroids, radii, areas and rule points from `image` (the same for the mirrored sources),
-    and whether to subtract them."""
-    mirror = direct if image is None else image
-    return tuple(direct) + (mirror[3], mirror[4], mirror[5], mirror[6], mirror[7], mirror[8],
-                            mirror[10], image is not None)
+from bem3d.operators.kernel_data import kernel_bytes
 
 
 class FieldPlan:
     """Block structure and memory estimate of a normal-field operator before assembly.
 
-    rows, columns: ClusterTrees of the test and the source panels; kargs: field_arguments
-    of the panels in those trees' cluster order."""
+    rows, columns: ClusterTrees of the test and the source panels; kernel_data:
+    kernel_data.normal_field of the panels in those trees' cluster order."""
 
-    def __init__(self, rows, columns, kargs, compression):
-        self.rows, self.columns, self.kargs, self.compression = rows, columns, kargs, compression
+    def __init__(self, rows, columns, kernel_data, compression):
+        self.rows, self.columns, self.compression = rows, columns, compression
+        self.kernel_data = kernel_data
         self.near, self.far = split_blocks(rows, compression, columns)
         self.dense_numbers = int(np.sum(self.near[:, 1] * self.near[:, 3]))
-        self.lowrank_numbers = estimate_lowrank(self.far, compression, kargs)
+        self.lowrank_numbers = estimate_lowrank(self.far, compression, kernel_data)
 
     def operator_bytes(self):
         """Estimated bytes of the assembled operator: dense leaves (exact) + low-rank factors."""
@@ -47,7 +39,7 @@ class FieldPlan:
 
     def argument_bytes(self):
         """Bytes of the kernel arguments (freed after assembly)."""
-        return sum(a.nbytes for a in self.kargs if isinstance(a, np.ndarray))
+        return kernel_bytes(self.kernel_data)
 
 
 class FieldOperator(BlockProducts, LinearOperator):
@@ -55,7 +47,7 @@ class FieldOperator(BlockProducts, LinearOperator):
     dimensionless) as a LinearOperator in the callers' panel orders."""
 
     def __init__(self, plan, memory_limit=None):
-        for name, value in assemble_blocks(plan.near, plan.far, plan.compression, plan.kargs,
+        for name, value in assemble_blocks(plan.near, plan.far, plan.compression, plan.kernel_data,
                                            plan.dense_numbers, memory_limit, False).items():
             setattr(self, name, value)
         self.row_perm, self.col_perm = plan.rows.perm, plan.columns.perm

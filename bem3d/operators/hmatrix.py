@@ -4,7 +4,7 @@ Panels are clustered by bounding-box bisection; blocks of cluster pairs with
 min(diam) <= eta * dist are admissible and approximated by adaptive cross approximation with
 partial pivoting (Bebendorf 2000, Numer. Math. 86, 565-589) followed by QR/SVD recompression to
 the block tolerance, their entries all by the one quadrature rule the dense backend would
-give the block's closest pair (hkernels.block_rules), so that they vary smoothly; all other
+give the block's closest pair (entries.block_rules), so that they vary smoothly; all other
 blocks are leaves filled densely with the dense backend's pair integrals (Hackbusch 1999, Computing 62,
 89-108; Börm, Grasedyck & Hackbusch 2003, Hierarchical matrices, lecture notes 21, MPI
 Leipzig). Storage and work grow like N log N.
@@ -21,9 +21,12 @@ from threadpoolctl import threadpool_limits
 from bem3d.base.constants import EPS0
 from bem3d.base.errors import ResourceError
 from bem3d.geometry.panels import Panels
-from bem3d.kernels import blocks as hkernels
+from bem3d.kernels import aca, entries, products
+from bem3d.kernels.data import SingleLayer
+from bem3d.kernels.schwarz import coarse_matrix, subdomain_inverses
 from bem3d.operators.cluster import ClusterTree, block_partition
-from bem3d.operators.rules import PairRules, image_arrays, kernel_arguments
+from bem3d.operators.kernel_data import kernel_bytes, single_layer
+from bem3d.operators.rules import PairRules
 
 #: Room (float64 numbers) for the ACA factors of one batch of admissible blocks.
 BATCH_NUMBERS = 2**24
@@ -60,15 +63,6 @@ class Compression:
         return asdict(self)
 
 
-def entry_arguments(panels, rules, ground_z=None):
-    """The tuple hkernels' entry function takes: kernel_arguments of the panels, then the
-    image_arrays of their mirror images in the plane z = ground_z (m), and whether to use them
-    (without a plane the panels' own arrays stand in, unused)."""
-    args = kernel_arguments(panels, rules)
-    image = args if ground_z is None else kernel_arguments(panels.mirrored(ground_z), rules)
-    return args + image_arrays(image) + (ground_z is not None,)
-
-
 def _ranges(tree, pairs, columns=None):
     # (row0, rows, col0, cols) of cluster pairs, in cluster numbering (columns: the column
     # tree when it is not the row tree)
@@ -89,20 +83,18 @@ def split_blocks(tree, compression, columns=None):
     return np.concatenate((near, far[small])), far[~small]
 
 
-def block_rules(blocks, kargs):
-    """The quadrature rule of each admissible block (hkernels.block_rules), for the
-    single-layer or the normal-field argument tuple kargs."""
-    if len(kargs) == hkernels.SINGLE_LAYER_ARGUMENTS:
-        centroids, radii, near, mid, far = kargs[2], kargs[3], kargs[15], kargs[16], kargs[17]
-        return hkernels.block_rules(blocks, centroids[:, None, :], radii, centroids, radii,
-                                    near, mid, far)
-    points, centroids, radii, near, mid, far = (kargs[0], kargs[5], kargs[6], kargs[12],
-                                                kargs[13], kargs[14])
-    return hkernels.block_rules(blocks, points, np.zeros(len(points)), centroids, radii,
-                                near, mid, far)
+def block_rules(blocks, kernel_data):
+    """The quadrature rule of each admissible block (kernels.entries.block_rules) of the
+    single-layer or the normal-field operator (kernels.data.SingleLayer or NormalField)."""
+    d = kernel_data
+    if isinstance(d, SingleLayer):
+        return entries.block_rules(blocks, d.centroids[:, None, :], d.radii, d.centroids,
+                                   d.radii, d.near, d.mid, d.far)
+    return entries.block_rules(blocks, d.test_points, np.zeros(len(d.test_points)),
+                               d.centroids, d.radii, d.near, d.mid, d.far)
 
 
-def estimate_lowrank(far, compression, kargs):
+def estimate_lowrank(far, compression, kernel_data):
     """Estimated numbers of the low-rank factors of the blocks far: the ranks of a sample of
     blocks of each size class (log2 of rows*cols) stand for the class."""
     if len(far) == 0:
@@ -114,7 +106,7 @@ def estimate_lowrank(far, compression, kargs):
                    min(max(2, RANK_SAMPLES * np.sum(size_class == c) // len(far)),
                        np.sum(size_class == c)), replace=False)
         for c in np.unique(size_class)]))
-    ranks, _ = _compress(far[pick], compression, kargs)
+    ranks, _ = _compress(far[pick], compression, kernel_data)
     per_number = np.zeros(size_class.max() + 1)
     for c in np.unique(size_class):
         sample = size_class[pick] == c
@@ -125,22 +117,23 @@ def estimate_lowrank(far, compression, kargs):
     return int(np.sum(per_number[size_class] * far[:, 1] * far[:, 3]))
 
 
-def assemble_blocks(near, far, compression, kargs, dense_numbers, memory_limit, symmetric):
+def assemble_blocks(near, far, compression, kernel_data, dense_numbers, memory_limit, symmetric):
     """Compress the admissible blocks far, fill the near ones: the block arrays of an
     operator (dense_blocks, dense_offsets, dense_data, lr_blocks, lr_offsets, lr_ranks,
-    lr_data). memory_limit (bytes) is checked as the low-rank factors come in, so a run that
-    outgrows its estimate stops cleanly instead of being killed."""
+    lr_data) from its kernel_data (kernels.data.SingleLayer or NormalField). memory_limit
+    (bytes) is checked as the low-rank factors come in, so a run that outgrows its estimate
+    stops cleanly instead of being killed."""
     item = STORAGE().itemsize
     budget = None if memory_limit is None else memory_limit - item * dense_numbers
-    ranks, pieces = _compress(far, compression, kargs, budget)
+    ranks, pieces = _compress(far, compression, kernel_data, budget)
     low = ranks > 0
     lr_blocks = far[low]
     lr_ranks = ranks[low]
     lr_data = _concatenate(pieces)
     # blocks that did not compress below the break-even rank join the dense leaves
     dense_blocks = np.concatenate((near, far[ranks < 0]))
-    dense_rules = np.concatenate((np.full(len(near), hkernels.PAIR_RULE, np.int64),
-                                  block_rules(far[ranks < 0], kargs)))
+    dense_rules = np.concatenate((np.full(len(near), entries.PAIR_RULE, np.int64),
+                                  block_rules(far[ranks < 0], kernel_data)))
     dense_sizes = dense_blocks[:, 1] * dense_blocks[:, 3]
     need = item * (lr_data.size + dense_sizes.sum())
     if memory_limit is not None and need > memory_limit:
@@ -148,8 +141,8 @@ def assemble_blocks(near, far, compression, kargs, dense_numbers, memory_limit, 
                             f"than the {memory_limit / 2**30:.1f} GiB allowed")
     dense_offsets = np.concatenate(([0], np.cumsum(dense_sizes))).astype(np.int64)
     dense_data = np.empty(dense_offsets[-1], STORAGE)
-    hkernels.fill_dense_blocks(dense_blocks, dense_rules, dense_offsets, dense_data, kargs,
-                               symmetric)
+    entries.fill_dense_blocks(dense_blocks, dense_rules, dense_offsets, dense_data, kernel_data,
+                              symmetric)
     lr_offsets = np.concatenate(
         ([0], np.cumsum(lr_ranks * (lr_blocks[:, 1] + lr_blocks[:, 3])))).astype(np.int64)
     return dict(dense_blocks=dense_blocks, dense_offsets=dense_offsets, dense_data=dense_data,
@@ -162,12 +155,12 @@ def _room(blocks, max_rank):
     return np.minimum(max_rank, (m * n) // (m + n))
 
 
-def _compress(blocks, compression, kargs, budget=None):
+def _compress(blocks, compression, kernel_data, budget=None):
     """Ranks (-1: store dense) and compressed factors of admissible blocks, in batches.
 
     budget: bytes the factors may take; passing it stops the run with ResourceError."""
     kmax = _room(blocks, compression.max_rank)
-    rules = block_rules(blocks, kargs)
+    rules = block_rules(blocks, kernel_data)
     ranks = np.empty(len(blocks), np.int64)
     pieces, start = [], 0
     eps = compression.tolerance
@@ -179,12 +172,12 @@ def _compress(blocks, compression, kargs, budget=None):
         scratch = np.empty(slots[-1])
         # each thread runs its own small LAPACK calls: a threaded BLAS inside would oversubscribe
         with threadpool_limits(limits=1, user_api="blas"):
-            hkernels.compress_blocks(batch, rules[start:stop], slots, scratch, ranks[start:stop],
-                                     ACA_SHARE * eps, SVD_SHARE * eps, kargs)
+            aca.compress_blocks(batch, rules[start:stop], slots, scratch, ranks[start:stop],
+                                     ACA_SHARE * eps, SVD_SHARE * eps, kernel_data)
         r = np.maximum(ranks[start:stop], 0)
         offsets = np.concatenate(([0], np.cumsum(r * (batch[:, 1] + batch[:, 3]))))
         piece = np.empty(offsets[-1], STORAGE)
-        hkernels.gather_blocks(batch, slots, ranks[start:stop], scratch, offsets, piece)
+        aca.gather_blocks(batch, slots, ranks[start:stop], scratch, offsets, piece)
         pieces.append(piece)
         start = stop
         held = sum(p.nbytes for p in pieces)
@@ -237,9 +230,9 @@ class HMatrixPlan:
         self.n = len(panels)
         self.panels = Panels(panels.vertices[self.tree.perm], panels.owner[self.tree.perm],
                              panels.names)
-        self.kargs = entry_arguments(self.panels, rules, ground_z)
+        self.kernel_data = single_layer(self.panels, rules, ground_z)
         self.dense_numbers = int(np.sum(self.near[:, 1] * self.near[:, 3]))
-        self.lowrank_numbers = estimate_lowrank(self.far, compression, self.kargs)
+        self.lowrank_numbers = estimate_lowrank(self.far, compression, self.kernel_data)
 
     @property
     def dense_bytes(self):
@@ -258,11 +251,11 @@ class HMatrixPlan:
     def work_bytes(self, n_rhs, subdomain_size):
         """Bytes beside the operator: the kernel arguments (freed after assembly), the
         preconditioner on subdomains of <= subdomain_size panels, and the solver's vectors."""
-        kargs = sum(a.nbytes for a in self.kargs if isinstance(a, np.ndarray))
+        arrays = kernel_bytes(self.kernel_data)
         sizes = np.diff(self.tree.partition(subdomain_size))
         schwarz = 8 * (np.sum(sizes * sizes) + 2 * len(sizes) ** 2)
         vectors = 8 * self.n * n_rhs * (numba.get_num_threads() + 10)
-        return int(kargs + schwarz + vectors)
+        return int(arrays + schwarz + vectors)
 
 
 class BlockProducts:
@@ -289,7 +282,7 @@ class BlockProducts:
         # the kernels take (columns, panels) so that each column is contiguous
         xp = np.ascontiguousarray(x[col_perm].T)
         parts = np.empty((len(self.dense_groups) - 1, x.shape[1], len(row_perm)))
-        hkernels.hmatrix_product(xp, parts, self.dense_blocks, self.dense_offsets,
+        products.hmatrix_product(xp, parts, self.dense_blocks, self.dense_offsets,
                                  self.dense_data, self.lr_blocks, self.lr_offsets, self.lr_ranks,
                                  self.lr_data, self.dense_order, self.lr_order,
                                  self.dense_groups, self.lr_groups, self.max_rank, symmetric)
@@ -332,7 +325,7 @@ class HMatrixOperator(BlockProducts, LinearOperator):
         """Compress the admissible blocks, fill the others. memory_limit (bytes) for the
         operator is checked as the low-rank factors come in, so a run that outgrows its
         estimate stops cleanly instead of being killed."""
-        blocks = assemble_blocks(plan.near, plan.far, plan.compression, plan.kargs,
+        blocks = assemble_blocks(plan.near, plan.far, plan.compression, plan.kernel_data,
                                  plan.dense_numbers, memory_limit, True)
         t = plan.tree
         return cls(dict(perm=t.perm, tree_start=t.start, tree_end=t.end, tree_child=t.child,
@@ -368,7 +361,7 @@ class HMatrixOperator(BlockProducts, LinearOperator):
 
         Returns (perm, bounds, inverse_offsets, inverses, coarse) of the unscaled integrals
         (P / scale): subdomain d is panels perm[bounds[d]:bounds[d+1]]; the zero-charge inverse
-        of its principal block (hkernels.zero_charge_inverse, areas: the panels' areas in
+        of its principal block (kernels.schwarz.zero_charge_inverse, areas: the panels' areas in
         cluster numbering) is at inverses[inverse_offsets[d]:], row-major; coarse is R P R^T
         for the subdomain indicators R. leading: cover only the first `leading` panels of the
         cluster numbering (whole clusters of the tree): the preconditioner of that principal
@@ -405,11 +398,11 @@ class HMatrixOperator(BlockProducts, LinearOperator):
         inv_offsets = np.concatenate(([0], np.cumsum(sizes * sizes))).astype(np.int64)
         inverses = np.empty(inv_offsets[-1])
         with threadpool_limits(limits=1, user_api="blas"):     # as in _compress
-            hkernels.subdomain_inverses(bounds, areas, dense_ptr, dense_idx, dense_blocks,
+            subdomain_inverses(bounds, areas, dense_ptr, dense_idx, dense_blocks,
                                         dense_offsets, self.dense_data, lr_ptr, lr_idx,
                                         lr_blocks, lr_offsets, lr_ranks, self.lr_data,
                                         inv_offsets, inverses)
-        coarse = hkernels.coarse_matrix(domain_of, len(sizes), dense_blocks, dense_offsets,
+        coarse = coarse_matrix(domain_of, len(sizes), dense_blocks, dense_offsets,
                                         self.dense_data, lr_blocks, lr_offsets, lr_ranks,
                                         self.lr_data)
         return self.perm, bounds, inv_offsets, inverses, coarse

@@ -1,7 +1,7 @@
 """Potential, field and winding number of panel charges at any points.
 
-The same triangle integrals as the operator (kernels.evaluate_points): closed forms near a
-panel, Gauss rules farther out, one point per panel far away.
+The same triangle integrals as the operator (kernels.points.evaluate_points): closed forms near
+a panel, Gauss rules farther out, one point per panel far away.
 """
 
 import math
@@ -12,19 +12,9 @@ import numpy as np
 from bem3d.base.constants import EPS0
 from bem3d.geometry.panels import Panels
 from bem3d.geometry.topology import closed_conductors
-from bem3d.kernels.pairs import evaluate_points
-from bem3d.operators.quadrature import map_points, triangle_rule
-
-
-@dataclass(frozen=True)
-class FieldRules:
-    """Distances (in panel radii) at which point evaluation changes rule; see evaluate_points."""
-
-    near: float = 2.0
-    mid: float = 4.0
-    far: float = 12.0
-    near_degree: int = 5
-    mid_degree: int = 2
+from bem3d.kernels.points import evaluate_points
+from bem3d.operators.kernel_data import point_sources
+from bem3d.operators.rules import FieldRules
 
 
 @dataclass
@@ -62,19 +52,13 @@ def evaluate(panels, sigma, points, eps_r=1.0, rules=FieldRules(), chunk=20000, 
                         np.concatenate([panels.owner, image.owner]), panels.names)
         sigma = np.ascontiguousarray(np.vstack([sigma, -sigma]))
         closed = np.concatenate([closed, np.zeros_like(closed)])    # images hold no points
-    bary_near, w_near = triangle_rule(rules.near_degree)
-    bary_mid, w_mid = triangle_rule(rules.mid_degree)
-    pts_near = map_points(panels.vertices, bary_near)
-    pts_mid = map_points(panels.vertices, bary_mid)
+    sources = point_sources(panels, rules)
     phi = np.zeros((len(points), k))
     grad = np.zeros((len(points), k, 3))
     winding = np.zeros(len(points))
     for start in range(0, len(points), chunk):       # bounded scratch, steady progress
         sl = slice(start, start + chunk)
-        evaluate_points(points[sl], sigma, closed, panels.vertices, panels.normals,
-                        panels.centroids, panels.radii, panels.areas, pts_mid, w_mid,
-                        pts_near, w_near, rules.near, rules.mid, rules.far,
-                        phi[sl], grad[sl], winding[sl])
+        evaluate_points(points[sl], sigma, closed, sources, phi[sl], grad[sl], winding[sl])
         if progress:
             progress(min(start + chunk, len(points)))
     scale = 1.0 / (4.0 * math.pi * EPS0 * eps_r)
@@ -85,14 +69,8 @@ def winding_numbers(panels, points):
     """Winding number (m,) of the closed surface `panels` at points (m, 3): 1 inside, 0 outside
     (exact solid angles near the surface, one-point ones far away)."""
     points = np.ascontiguousarray(np.asarray(points, float).reshape(-1, 3))
-    bary_near, w_near = triangle_rule(5)
-    bary_mid, w_mid = triangle_rule(2)
     winding = np.zeros(len(points))
-    rules = FieldRules()
-    evaluate_points(points, np.zeros((len(panels), 1)), np.ones(len(panels)), panels.vertices,
-                    panels.normals, panels.centroids, panels.radii, panels.areas,
-                    map_points(panels.vertices, bary_mid), w_mid,
-                    map_points(panels.vertices, bary_near), w_near, rules.near, rules.mid,
-                    rules.far, np.zeros((len(points), 1)), np.zeros((len(points), 1, 3)),
-                    winding)
+    evaluate_points(points, np.zeros((len(panels), 1)), np.ones(len(panels)),
+                    point_sources(panels), np.zeros((len(points), 1)),
+                    np.zeros((len(points), 1, 3)), winding)
     return winding

@@ -75,7 +75,7 @@ def map_points(vertices, bary):
 def edge_rule(n):
     """n Gauss-Legendre points and weights on [0, 1] after the substitution s = 3u^2 - 2u^3,
     whose vanishing derivative at both ends absorbs the logarithmic end behaviour of the
-    self-panel edge integrals (kernels.self_integral)."""
+    self-panel edge integrals (kernels.triangle.self_integral)."""
     x, w = roots_legendre(n)
     u = (x + 1) / 2
     return np.ascontiguousarray(3 * u**2 - 2 * u**3), np.ascontiguousarray(w * 3 * u * (1 - u))

@@ -1,8 +1,6 @@
-"""Galerkin single-layer operators. Every backend exposes scipy's LinearOperator protocol."""
+"""Quadrature settings: of the Galerkin pair integrals, and of fields at points."""
 
 from dataclasses import asdict, dataclass
-
-from bem3d.operators.quadrature import edge_rule, graded_rule, map_points, triangle_rule
 
 
 @dataclass(frozen=True)
@@ -10,7 +8,7 @@ class PairRules:
     """How panel-pair integrals are computed, by centroid distance in units of r_k + r_l.
 
     Beyond `far`: the centroids' value with the panels' second moments
-    (kernels.moment_pair). Beyond `mid`: a degree-`mid_degree` rule on both;
+    (kernels.pairs.moment_pair). Beyond `mid`: a degree-`mid_degree` rule on both;
     beyond `near`: the degree-`near_degree` rule on both.
     Closer: a point rule on the smaller panel and the closed-form triangle potential over the
     larger: degree `near_degree`, or inside `touch` (panels that share a corner or edge) the
@@ -37,19 +35,13 @@ class PairRules:
         return asdict(self)
 
 
-def kernel_arguments(panels, rules):
-    """The argument tuple the numba pair kernels take, after the output array."""
-    args = [panels.vertices, panels.normals, panels.centroids, panels.radii, panels.areas,
-            panels.moments]
-    for bary, w in (graded_rule(rules.touch_points), triangle_rule(rules.near_degree),
-                    triangle_rule(rules.mid_degree)):
-        args += [map_points(panels.vertices, bary), w]
-    args += list(edge_rule(rules.self_points))
-    return tuple(args) + (float(rules.touch), float(rules.near), float(rules.mid), float(rules.far))
+@dataclass(frozen=True)
+class FieldRules:
+    """Distances (in panel radii) at which fields at points change rule, and the degrees of
+    the near and mid rules; see kernels.points.evaluate_points."""
 
-
-def image_arrays(image):
-    """Of kernel_arguments(mirror images, rules), the arrays the image kernels take after the
-    panels' own arguments: the images' corners, normals, centroids, second moments and touch,
-    near and mid rule points (their areas, radii and weights are the panels' own)."""
-    return image[0], image[1], image[2], image[5], image[6], image[8], image[10]
+    near: float = 2.0
+    mid: float = 4.0
+    far: float = 12.0
+    near_degree: int = 5
+    mid_degree: int = 2

@@ -7,7 +7,8 @@ import numpy as np
 from bem3d.base.constants import EPS0
 from bem3d.geometry.panels import Panels
 from bem3d.geometry.topology import closed_conductors
-from bem3d.operators.points import FieldRules, evaluate
+from bem3d.operators.points import evaluate
+from bem3d.operators.rules import FieldRules
 from bem3d.solve.conductors import solve_panels
 
 

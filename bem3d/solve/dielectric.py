@@ -31,10 +31,10 @@ import scipy.linalg
 from bem3d.base.errors import MeshError, ModelError, option
 from bem3d.geometry.panels import Panels
 from bem3d.geometry.topology import closed_conductors
-from bem3d.kernels.pairs import assemble_normal_field
+from bem3d.kernels.dense import assemble_normal_field
 from bem3d.operators.dense import DenseOperator, dense_bytes
+from bem3d.operators.kernel_data import normal_field
 from bem3d.operators.points import winding_numbers
-from bem3d.operators.quadrature import graded_rule, map_points, triangle_rule
 from bem3d.operators.rules import PairRules
 from bem3d.results import CapacitanceResult, FieldSources, potential_vector
 
@@ -269,18 +269,6 @@ def solve_with_dielectrics(conductors, bodies, background=1.0, volts=None, rules
     return solve_system(plan_dielectrics(conductors, bodies, background, ground_z), volts, rules)
 
 
-def normal_field_arguments(inter, sources):
-    """The arguments kernels.normal_field_entry takes after (i, l): each interface panel's
-    graded test points, weights and normal, then the source panels and their rules."""
-    bary_near, w_near = triangle_rule(5)
-    bary_mid, w_mid = triangle_rule(2)
-    bary_test, w_test = graded_rule(TEST_POINTS)
-    return (map_points(inter.vertices, bary_test), w_test, inter.normals, sources.vertices,
-            sources.normals, sources.centroids, sources.radii, sources.areas,
-            map_points(sources.vertices, bary_mid), w_mid,
-            map_points(sources.vertices, bary_near), w_near, 2.0, 4.0, 12.0)
-
-
 def _interface_rows(out, system, sources):
     """Fill out (ni, n) with the interface rows' normal field (see _normal_field_rows)."""
     _normal_field_rows(out, system.interfaces, sources, system.ground_z)
@@ -290,12 +278,7 @@ def _normal_field_rows(out, tests, sources, ground_z):
     """Fill out (m, n): over each test panel's points, the weighted sum of n_k . (field of a
     unit charge density on each source panel), less that of the source's mirror image when
     there is a grounded plane z = ground_z."""
-    assemble_normal_field(out, *normal_field_arguments(tests, sources))
-    if ground_z is not None:
-        image = np.empty_like(out)          # within system_bytes: no LU copy exists yet
-        assemble_normal_field(image, *normal_field_arguments(tests,
-                                                             sources.mirrored(ground_z)))
-        out -= image
+    assemble_normal_field(out, normal_field(tests, sources, TEST_POINTS, ground_z))
 
 
 def union_panels(system):

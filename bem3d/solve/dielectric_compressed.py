@@ -20,10 +20,11 @@ from threadpoolctl import threadpool_limits
 
 from bem3d.geometry.panels import Panels
 from bem3d.operators.cluster import ClusterTree
-from bem3d.operators.hfield import FieldOperator, FieldPlan, field_arguments
+from bem3d.operators.hfield import FieldOperator, FieldPlan
 from bem3d.operators.hmatrix import Compression, HMatrixOperator, HMatrixPlan
+from bem3d.operators.kernel_data import normal_field
 from bem3d.operators.rules import PairRules
-from bem3d.solve.dielectric import normal_field_arguments, system_result, system_rhs, union_panels
+from bem3d.solve.dielectric import TEST_POINTS, system_result, system_rhs, union_panels
 from bem3d.solve.schwarz import SchwarzPreconditioner
 
 #: Krylov vectors kept between GMRES restarts.
@@ -52,11 +53,9 @@ class DielectricPlan:
                                   leading=len(conductors))
         if len(inter):
             ordered = Panels(inter.vertices[rows.perm], inter.owner[rows.perm], inter.names)
-            sources = self.single.panels
-            image = (None if system.ground_z is None
-                     else normal_field_arguments(ordered, sources.mirrored(system.ground_z)))
-            self.field = FieldPlan(rows, tree, field_arguments(
-                normal_field_arguments(ordered, sources), image), compression)
+            self.field = FieldPlan(rows, tree, normal_field(ordered, self.single.panels,
+                                                            TEST_POINTS, system.ground_z),
+                                   compression)
 
     def operator_bytes(self):
         """Estimated bytes of both compressed operators."""

@@ -5,7 +5,7 @@ import numpy as np
 import scipy.linalg
 import scipy.sparse
 
-from bem3d.kernels.blocks import apply_subdomain_inverses, zero_charge_inverse
+from bem3d.kernels.schwarz import apply_subdomain_inverses, zero_charge_inverse
 from bem3d.operators.cluster import ClusterTree
 
 
@@ -16,7 +16,7 @@ class SchwarzPreconditioner:
     tree. The coarse space is one constant charge density per subdomain (R_0: the subdomain
     indicators); each local space holds the subdomain's charges of zero total, so the local
     and coarse spaces split the charges as a direct sum. S_d is the exact solve on that local
-    space (hkernels.zero_charge_inverse of the principal block P_dd). Charges of zero total
+    space (kernels.schwarz.zero_charge_inverse of the principal block P_dd). Charges of zero total
     have a dipole's fast-decaying potential, so the local spaces barely couple; a subdomain's
     net charge acts far away and is left to the coarse solve. Plain block-Jacobi solves on
     whole subdomains count that far action in every subdomain again, so their condition
