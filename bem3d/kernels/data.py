@@ -70,11 +70,17 @@ class NormalField(NamedTuple):
     (the fields of PointSources) along the test panels' normals, averaged over their test
     points, less that of the sources' mirror images when `grounded` (without a plane the
     image fields are the sources' own, unused). The images use the sources' rule weights
-    and distances."""
+    and distances. The graded test rule follows the logarithmic edges of a neighbour's
+    field; a source far from the test panel (beyond `mid` times their radii summed) has a
+    smooth field there, which the smaller symmetric rule far_points integrates."""
 
     test_points: np.ndarray      # (m, q, 3)
     test_weights: np.ndarray     # (q,), summing to 1
     test_normals: np.ndarray     # (m, 3)
+    test_centroids: np.ndarray   # (m, 3)
+    test_radii: np.ndarray       # (m,)
+    far_points: np.ndarray       # (m, p, 3)
+    far_weights: np.ndarray      # (p,), summing to 1
     verts: np.ndarray
     normals: np.ndarray
     centroids: np.ndarray

@@ -69,6 +69,15 @@ def _field_rule(i, l, rule, points, weights, point_normals, centroids, areas, pt
     return total
 
 
+@njit(cache=True, inline="always")
+def _apart(i, l, test_centroids, test_radii, centroids, radii, factor):
+    # test panel i and source panel l farther apart than factor times their radii summed
+    a0 = test_centroids[i, 0] - centroids[l, 0]
+    a1 = test_centroids[i, 1] - centroids[l, 1]
+    a2 = test_centroids[i, 2] - centroids[l, 2]
+    return a0 * a0 + a1 * a1 + a2 * a2 > (factor * (test_radii[i] + radii[l])) ** 2
+
+
 @njit(cache=True)
 def _field_entries(i0, di, j0, dj, count, out, a, rule):
     # out[t] = normal field of source panel j0 + t dj tested over interface panel i0 + t di,
@@ -76,6 +85,8 @@ def _field_entries(i0, di, j0, dj, count, out, a, rule):
     # block's rule, less that
     # of the source's mirror image when a.grounded (a: data.NormalField)
     points, weights, point_normals = a.test_points, a.test_weights, a.test_normals
+    test_centroids, test_radii = a.test_centroids, a.test_radii
+    far_points, far_weights = a.far_points, a.far_weights
     verts, normals, centroids, radii, areas = a.verts, a.normals, a.centroids, a.radii, a.areas
     pts_mid, w_mid, pts_near, w_near = a.pts_mid, a.w_mid, a.pts_near, a.w_near
     near, mid, far = a.near, a.mid, a.far
@@ -86,17 +97,26 @@ def _field_entries(i0, di, j0, dj, count, out, a, rule):
         i = i0 + t * di
         j = j0 + t * dj
         if rule != PAIR_RULE:
-            v = _field_rule(i, j, rule, points, weights, point_normals, centroids, areas,
+            # admissible blocks: separated clusters, a smooth field over the test panel
+            tp, tw = (points, weights) if rule == NEAR_RULE else (far_points, far_weights)
+            v = _field_rule(i, j, rule, tp, tw, point_normals, centroids, areas,
                             pts_mid, w_mid, pts_near, w_near)
             if image:
-                v -= _field_rule(i, j, rule, points, weights, point_normals, i_centroids,
+                v -= _field_rule(i, j, rule, tp, tw, point_normals, i_centroids,
                                  i_areas, i_pts_mid, w_mid, i_pts_near, w_near)
             out[t] = v
             continue
-        v = normal_field_entry(i, j, points, weights, point_normals, verts, normals, centroids,
-                               radii, areas, pts_mid, w_mid, pts_near, w_near, near, mid, far)
+        # a source beyond `mid` radii summed: its field is smooth over the test panel
+        tp, tw = points, weights
+        if _apart(i, j, test_centroids, test_radii, centroids, radii, mid):
+            tp, tw = far_points, far_weights
+        v = normal_field_entry(i, j, tp, tw, point_normals, verts, normals, centroids, radii,
+                               areas, pts_mid, w_mid, pts_near, w_near, near, mid, far)
         if image:
-            v -= normal_field_entry(i, j, points, weights, point_normals, i_verts, i_normals,
+            tp, tw = points, weights
+            if _apart(i, j, test_centroids, test_radii, i_centroids, i_radii, mid):
+                tp, tw = far_points, far_weights
+            v -= normal_field_entry(i, j, tp, tw, point_normals, i_verts, i_normals,
                                     i_centroids, i_radii, i_areas, i_pts_mid, w_mid, i_pts_near,
                                     w_near, near, mid, far)
         out[t] = v

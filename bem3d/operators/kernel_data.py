@@ -42,15 +42,24 @@ def point_sources(panels, rules=FieldRules()):
                         float(rules.mid), float(rules.far))
 
 
+#: Degree of the symmetric test rule for sources far from the test panel (7 points).
+FAR_TEST_DEGREE = 5
+
+
 def normal_field(tests, sources, test_points, ground_z=None, rules=FieldRules()):
     """The normal-field operator: the field of `sources` (Panels) along the normals of the
-    `tests` panels, averaged over each test panel's graded rule of test_points^2 points, less
-    that of the sources' mirror images in the grounded plane z = ground_z (m) if given."""
+    `tests` panels, averaged over each test panel's graded rule of test_points^2 points (by
+    a symmetric rule of degree FAR_TEST_DEGREE for sources beyond FieldRules.mid times the
+    radii summed), less that of the sources'
+    mirror images in the grounded plane z = ground_z (m) if given."""
     bary, weights = graded_rule(test_points)
+    far_bary, far_weights = triangle_rule(FAR_TEST_DEGREE)
     own = point_sources(sources, rules)
     image = own if ground_z is None else point_sources(sources.mirrored(ground_z), rules)
     return NormalField(test_points=map_points(tests.vertices, bary), test_weights=weights,
-                       test_normals=tests.normals, **own._asdict(), image_verts=image.verts,
+                       test_normals=tests.normals, test_centroids=tests.centroids,
+                       test_radii=tests.radii, far_points=map_points(tests.vertices, far_bary),
+                       far_weights=far_weights, **own._asdict(), image_verts=image.verts,
                        image_normals=image.normals, image_centroids=image.centroids,
                        image_radii=image.radii, image_areas=image.areas,
                        image_pts_mid=image.pts_mid, image_pts_near=image.pts_near,

@@ -153,10 +153,11 @@ def _coincident(a, b, size, what):
     same = np.zeros(len(a), bool)
     if not len(a) or not len(b):
         return same
-    pairs = cKDTree(a.centroids).query_ball_tree(cKDTree(b.centroids),
-                                                 r=float(a.radii.max() + b.radii.max()))
-    i = np.repeat(np.arange(len(a)), [len(c) for c in pairs])
-    k = np.fromiter((x for c in pairs for x in c), int, count=len(i))
+    near = cKDTree(a.centroids).sparse_distance_matrix(
+        cKDTree(b.centroids), float(a.radii.max() + b.radii.max()), output_type="ndarray")
+    # panels that overlap have centroids closer than their radii summed
+    close = near["v"] < a.radii[near["i"]] + b.radii[near["j"]]
+    i, k = near["i"][close].astype(np.int64), near["j"][close].astype(np.int64)
     if not len(i):
         return same
     corners_a = np.round(np.sort(a.vertices[i], axis=1).reshape(-1, 9) / key)
