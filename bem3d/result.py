@@ -15,7 +15,7 @@ class Result:
 
     names: conductors in matrix order. maxwell (n, n) F: the charge on i per volt on j with the
     others at 0 V; mutual (n, n) F: the two-terminal capacitances (diagonal: to infinity or
-    ground); potentials (V), charges (C) and energy (J) at the given potentials; sigma (C/m^2)
+    ground, or to the reference conductor); potentials (V), charges (C) and energy (J) at the given potentials; sigma (C/m^2)
     on each panel at those potentials; panels: the conductor panels in `units`; warnings;
     solver and timings records. With lossy media: conductance and mutual_conductance (S) at
     frequency (Hz), I = (G + j omega C) V; all three None otherwise. Shown in a notebook it prints its tables, never arrays."""
@@ -38,6 +38,8 @@ class Result:
     energy = property(lambda self: self._solved.energy, doc="stored energy 1/2 V^T C V (J)")
     floating = property(lambda self: dict(self._solved.floating),
                         doc="{name: V} of floating conductors at the given potentials")
+    reference = property(lambda self: self._solved.reference,
+                         doc="the conductor taken as the ground node, or None (infinity)")
     conductance = property(lambda self: self._solved.conductance,
                            doc="Maxwell-form conductance matrix (S) at `frequency`, or None")
     mutual_conductance = property(lambda self: self._solved.mutual_conductance,
@@ -79,7 +81,7 @@ class Result:
         parts = [f"<p>{len(self.names)} conductors, {len(self._panels_m)} panels, lengths in "
                  f"{html.escape(self.units)}; stored energy {self.energy:.5g} J</p>"]
         tables = [("Maxwell capacitance matrix", self._solved.maxwell, "F"),
-                  ("Mutual capacitance (diagonal: to infinity/ground)", self.mutual, "F")]
+                  (f"Mutual capacitance (diagonal: to {self._solved.ground})", self.mutual, "F")]
         if self.conductance is not None:
             tables.append((f"Maxwell conductance matrix at {self.frequency:.6g} Hz",
                            self.conductance, "S"))
