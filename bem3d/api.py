@@ -109,7 +109,7 @@ def _announce(n_panels, settings, n_points=0, excitations=1):
 
 def _solve(model, settings, panels, progress, start):
     solved = solve_panels(panels, model.volts, progress=progress, ground_z=model.ground_z_m,
-                          floating=model.floating,
+                          floating=model.floating, reference=model.reference,
                           dielectrics=read_bodies(model.dielectrics, model.length_unit),
                           **model.medium, **settings)
     solved.solver["peak_memory_MiB"] = peak_memory() / 2**20
@@ -118,7 +118,7 @@ def _solve(model, settings, panels, progress, start):
 
 
 def extract(inputs, *, units=None, volts=None, eps_r=None, ground_plane=None, floating=(),
-            dielectrics=(), loss_tangent=None, frequency=None, backend="auto", solver="auto", tol=1e-7, block_tol=1e-5,
+            dielectrics=(), loss_tangent=None, frequency=None, reference=None, backend="auto", solver="auto", tol=1e-7, block_tol=1e-5,
             cache=True, cache_dir=None, max_panels=None, out=None, force=False,
             progress=False):
     """Solve for the capacitance matrices of the conductors in `inputs`: a Result.
@@ -129,7 +129,9 @@ def extract(inputs, *, units=None, volts=None, eps_r=None, ground_plane=None, fl
     0 V. eps_r: background relative permittivity. ground_plane: z of an infinite grounded
     plane. floating: conductors of zero net charge. dielectrics: {mesh path: eps_r or (eps_r,
     loss tangent)} of closed bodies. loss_tangent: the background's; frequency: Hz at which the
-    conductance matrix of lossy media is given (default 1 MHz, with a warning). backend: 'auto', 'dense' or 'compressed'; solver: 'auto', 'direct' or 'cg'; tol:
+    conductance matrix of lossy media is given (default 1 MHz, with a warning). reference: the
+    conductor taken as the ground node: the others' matrices relative to it, with the far
+    field (and a ground plane) lumped into it (results.reduce_reference). backend: 'auto', 'dense' or 'compressed'; solver: 'auto', 'direct' or 'cg'; tol:
     the CG relative residual; block_tol: the compressed backend's block accuracy; cache,
     cache_dir: the operator cache. max_panels: refuse a larger model before any assembly.
     out: also write the result files into this folder (refused before solving if it holds an
@@ -137,7 +139,7 @@ def extract(inputs, *, units=None, volts=None, eps_r=None, ground_plane=None, fl
     start = time.perf_counter()
     model = model_of(inputs, units=units, volts=volts, eps_r=eps_r, ground_plane=ground_plane,
                      floating=floating, dielectrics=dielectrics, loss_tangent=loss_tangent,
-                     frequency=frequency)
+                     frequency=frequency, reference=reference)
     settings = solve_settings(backend, solver, tol, block_tol, cache, cache_dir)
     if out is not None:
         check_output_folder(out, model.files(), output_names(model), force)
@@ -152,8 +154,8 @@ def extract(inputs, *, units=None, volts=None, eps_r=None, ground_plane=None, fl
 
 def field(inputs, *, box=None, margin=0.5, spacing=None, points=41, slices=(), at=None,
           unit_fields=False, png=False, units=None, volts=None, eps_r=None, ground_plane=None,
-          floating=(), dielectrics=(), loss_tangent=None, frequency=None, backend="auto",
-          solver="auto", tol=1e-7, block_tol=1e-5, cache=True, cache_dir=None, max_panels=None, out=None, force=False,
+          floating=(), dielectrics=(), loss_tangent=None, frequency=None, reference=None,
+          backend="auto", solver="auto", tol=1e-7, block_tol=1e-5, cache=True, cache_dir=None, max_panels=None, out=None, force=False,
           progress=False):
     """Solve as extract does, then evaluate the potential, field and energy density: a
     FieldResult with the energy balance, peak fields, forces and the evaluated arrays.
@@ -166,7 +168,7 @@ def field(inputs, *, box=None, margin=0.5, spacing=None, points=41, slices=(), a
     start = time.perf_counter()
     model = model_of(inputs, units=units, volts=volts, eps_r=eps_r, ground_plane=ground_plane,
                      floating=floating, dielectrics=dielectrics, loss_tangent=loss_tangent,
-                     frequency=frequency)
+                     frequency=frequency, reference=reference)
     settings = solve_settings(backend, solver, tol, block_tol, cache, cache_dir)
     request = field_request(LENGTH_UNITS[model.length_unit], box=box, margin=margin,
                             spacing=spacing, points=points, slices=slices, at=at,
@@ -194,7 +196,7 @@ def field(inputs, *, box=None, margin=0.5, spacing=None, points=41, slices=(), a
 
 def sweep(inputs, *, moves=(), each=False, entries=(), units=None, volts=None, eps_r=None,
           ground_plane=None, floating=(), dielectrics=(), loss_tangent=None, frequency=None,
-          solver="auto", tol=1e-7, workers=None, threads=None, scheduler=None, cache=None, out="bem3d_sweep",
+          reference=None, solver="auto", tol=1e-7, workers=None, threads=None, scheduler=None, cache=None, out="bem3d_sweep",
           on_event=None):
     """Run many extractions, resumable, into the folder `out`: a post.sweep.run.SweepOutcome
     (records, summary rows, counts).
@@ -210,7 +212,7 @@ def sweep(inputs, *, moves=(), each=False, entries=(), units=None, volts=None, e
         return build_model(paths, units=units, volts=volts, eps_r=eps_r,
                            ground_plane=ground_plane, floating=floating,
                            dielectrics=dielectrics, loss_tangent=loss_tangent,
-                           frequency=frequency, out=".")
+                           frequency=frequency, reference=reference, out=".")
 
     inputs = [inputs] if isinstance(inputs, (str, Path)) else list(inputs)
     entries = [entries] if isinstance(entries, str) else list(entries)
@@ -224,8 +226,8 @@ def sweep(inputs, *, moves=(), each=False, entries=(), units=None, volts=None, e
 
 def converge(inputs, *, refinements=2, flat=False, crease_angle=CREASE_DEGREES, units=None,
              volts=None, eps_r=None, ground_plane=None, floating=(), dielectrics=(),
-             loss_tangent=None, frequency=None, solver="auto", tol=1e-7, out=None,
-             progress=False):
+             loss_tangent=None, frequency=None, reference=None, solver="auto", tol=1e-7,
+             out=None, progress=False):
     """Solve the model on its mesh and on one or two midpoint subdivisions: a
     post.convergence.Convergence (each entry on each mesh, Richardson values, error
     estimates, observed orders; .table() for text). Edges whose panels meet at less than
@@ -238,7 +240,7 @@ def converge(inputs, *, refinements=2, flat=False, crease_angle=CREASE_DEGREES, 
         raise ModelError(f"{option('refinements')} must be 1 or 2, got {refinements}")
     model = model_of(inputs, units=units, volts=volts, eps_r=eps_r, ground_plane=ground_plane,
                      floating=floating, dielectrics=dielectrics, loss_tangent=loss_tangent,
-                     frequency=frequency)
+                     frequency=frequency, reference=reference)
     if out is not None:           # the study's files are replaced; an input never is
         check_output_folder(out, model.files(), CONVERGENCE_FILES, force=True)
     conv = converge_model(model, refinements, not flat, crease_angle, solver, tol,

@@ -9,6 +9,7 @@ A model comes from command-line flags or from a TOML model file such as
     meshes = ["sensor_head.msh"]        # paths relative to this file
     ground_plane_z = 0.0                # optional: infinite grounded plane z = const (length_unit)
     floating = ["lid"]                  # optional: conductors with zero net charge
+    reference = "gnd_pour"              # optional: the conductor taken as the ground node
     [[dielectric]]                      # optional, repeatable: a closed body of one material
     mesh = "cover.stl"
     relative_permittivity = 3.8
@@ -42,7 +43,8 @@ PERMITTIVITY_RANGE = (1.0, 1e6)
 DEFAULT_FREQUENCY = 1e6
 
 _TOP_KEYS = {"length_unit", "relative_permittivity", "meshes", "volts", "output",
-             "ground_plane_z", "floating", "dielectric", "loss_tangent", "frequency_Hz"}
+             "ground_plane_z", "floating", "dielectric", "loss_tangent", "frequency_Hz",
+             "reference"}
 _BODY_KEYS = {"mesh", "relative_permittivity", "loss_tangent"}
 _OUTPUT_KEYS = {"folder", "spice_name"}
 #: A model file lists a few meshes and settings; anything near this size is not one.
@@ -65,6 +67,7 @@ class Model:
     dielectrics: list = field(default_factory=list)  # [(mesh path, eps_r, loss tangent)]
     loss_tangent: float = 0.0
     frequency_Hz: float | None = None
+    reference: str | None = None
 
     def __post_init__(self):
         self.meshes = [Path(p) for p in self.meshes]
@@ -83,6 +86,9 @@ class Model:
                 isinstance(f, str) for f in self.floating):
             raise ModelError(f"{self.source}: 'floating' must be a list of conductor names")
         self.floating = list(dict.fromkeys(self.floating))
+        if self.reference is not None and (not isinstance(self.reference, str)
+                                           or not self.reference):
+            raise ModelError(f"{self.source}: 'reference' must be a conductor name")
         checked = []
         for path, eps, *loss in self.dielectrics:
             checked.append((Path(path), _permittivity(eps, f"relative permittivity of {path}",
@@ -208,7 +214,7 @@ def load_model(path):
                  dielectrics=[(here / b["mesh"], b["relative_permittivity"],
                                b.get("loss_tangent", 0.0)) for b in bodies],
                  loss_tangent=data.get("loss_tangent", 0.0),
-                 frequency_Hz=data.get("frequency_Hz"))
+                 frequency_Hz=data.get("frequency_Hz"), reference=data.get("reference"))
 
 
 def parse_dielectrics(items):
@@ -244,7 +250,7 @@ def parse_volts(items, source=option("volts")):
 
 
 def build_model(inputs, *, units=None, volts=None, eps_r=None, ground_plane=None, floating=(),
-                dielectrics=(), loss_tangent=None, frequency=None, out=None):
+                dielectrics=(), loss_tangent=None, frequency=None, reference=None, out=None):
     """The Model of `inputs` (mesh paths, or one .toml model file whose settings are the
     defaults) with the given settings on top; None (or empty) leaves a setting as it is.
 
@@ -252,7 +258,8 @@ def build_model(inputs, *, units=None, volts=None, eps_r=None, ground_plane=None
     ground_plane: z of a grounded plane (mesh unit); floating: conductor names; dielectrics:
     [(mesh path, eps_r[, loss tangent])] or {path: eps_r or (eps_r, loss tangent)};
     loss_tangent: the background's; frequency: Hz at which the conductance is given (lossy
-    media); out: output folder (default <first input>_result)."""
+    media); reference: the conductor taken as the ground node (the far field lumped into it);
+    out: output folder (default <first input>_result)."""
     inputs = [inputs] if isinstance(inputs, (str, Path)) else list(inputs)
     if not inputs:
         raise ModelError("no mesh files given")
@@ -276,6 +283,8 @@ def build_model(inputs, *, units=None, volts=None, eps_r=None, ground_plane=None
         model.loss_tangent = loss_tangent
     if frequency is not None:
         model.frequency_Hz = frequency
+    if reference is not None:
+        model.reference = reference
     if out is not None:
         model.output_folder = Path(out)
     if model.output_folder is None:

@@ -8,6 +8,7 @@ from bem3d.base.files import check_output_folder, staged_outputs
 from bem3d.base.units import prefix_for
 from bem3d.export.field_files import write_field_files
 from bem3d.export.outputs import output_names, write_outputs
+from bem3d.post.sensitivity import maxwell_sensitivity, sensitivity_problem
 
 
 class Result:
@@ -15,14 +16,21 @@ class Result:
 
     names: conductors in matrix order. maxwell (n, n) F: the charge on i per volt on j with the
     others at 0 V; mutual (n, n) F: the two-terminal capacitances (diagonal: to infinity or
-    ground); potentials (V), charges (C) and energy (J) at the given potentials; sigma (C/m^2)
+    ground, or to the reference conductor); potentials (V), charges (C) and energy (J) at the given potentials; sigma (C/m^2)
     on each panel at those potentials; panels: the conductor panels in `units`; warnings;
     solver and timings records. With lossy media: conductance and mutual_conductance (S) at
-    frequency (Hz), I = (G + j omega C) V; all three None otherwise. Shown in a notebook it prints its tables, never arrays."""
+    frequency (Hz), I = (G + j omega C) V; all three None otherwise. sensitivity: {conductor:
+    (3, n, n)} dC/dx, dC/dy, dC/dz (F/m) when that conductor alone translates, or None where it
+    does not apply yet (the warnings say why). Shown in a notebook it prints its tables, never
+    arrays."""
 
     def __init__(self, solved, panels, model, warnings=()):
         self._solved, self._panels_m, self.model = solved, panels, model
         self.warnings = list(warnings)
+        self._sensitivity_problem = sensitivity_problem(solved, panels)
+        if self._sensitivity_problem:
+            self.warnings.append(self._sensitivity_problem)
+        self._sensitivity = None
         self.files = []
 
     @property
@@ -38,6 +46,8 @@ class Result:
     energy = property(lambda self: self._solved.energy, doc="stored energy 1/2 V^T C V (J)")
     floating = property(lambda self: dict(self._solved.floating),
                         doc="{name: V} of floating conductors at the given potentials")
+    reference = property(lambda self: self._solved.reference,
+                         doc="the conductor taken as the ground node, or None (infinity)")
     conductance = property(lambda self: self._solved.conductance,
                            doc="Maxwell-form conductance matrix (S) at `frequency`, or None")
     mutual_conductance = property(lambda self: self._solved.mutual_conductance,
@@ -46,6 +56,25 @@ class Result:
                          doc="frequency (Hz) of the conductance, or None")
     solver = property(lambda self: self._solved.solver, doc="how the charges were found")
     timings = property(lambda self: self._solved.timings_s, doc="seconds by stage")
+
+    @property
+    def sensitivity(self):
+        """{conductor: (3, n, n) ndarray} of dC/dx, dC/dy, dC/dz (F/m) of the Maxwell matrix
+        when that conductor alone translates rigidly, from the solved charges (no further
+        solve; post.sensitivity); None where it does not apply yet (see warnings)."""
+        if self._sensitivity_problem:
+            return None
+        if self._sensitivity is None:
+            self._sensitivity = maxwell_sensitivity(self._solved, self._panels_m)
+        return {name: d.copy() for name, d in self._sensitivity.items()}
+
+    def _record_keys(self):
+        """The keys Result adds to result.json: the sensitivities, when they apply."""
+        sensitivity = self.sensitivity
+        if sensitivity is None:
+            return {}
+        return {"maxwell_sensitivity_F_per_m": {name: d.tolist()
+                                                for name, d in sensitivity.items()}}
 
     @property
     def sigma(self):
@@ -79,7 +108,7 @@ class Result:
         parts = [f"<p>{len(self.names)} conductors, {len(self._panels_m)} panels, lengths in "
                  f"{html.escape(self.units)}; stored energy {self.energy:.5g} J</p>"]
         tables = [("Maxwell capacitance matrix", self._solved.maxwell, "F"),
-                  ("Mutual capacitance (diagonal: to infinity/ground)", self.mutual, "F")]
+                  (f"Mutual capacitance (diagonal: to {self._solved.ground})", self.mutual, "F")]
         if self.conductance is not None:
             tables.append((f"Maxwell conductance matrix at {self.frequency:.6g} Hz",
                            self.conductance, "S"))
@@ -115,7 +144,7 @@ class Result:
         check_output_folder(folder, self.inputs(), output_names(self.model), force)
         with staged_outputs(folder, self.inputs(), force) as stage:
             written = write_outputs(stage, self._panels_m, self._solved, self.model,
-                                    self.warnings)
+                                    self.warnings, self._record_keys())
         self.files = [folder / f.name for f in written]
         return self.files
 
@@ -147,7 +176,7 @@ class FieldResult(Result):
         with staged_outputs(folder, inputs, force) as stage:
             written, self.picture_problems = write_field_files(
                 stage, self._panels_m, self._solved, self.model, self.field_map,
-                self.warnings, self.png)
+                self.warnings, self.png, self._record_keys())
         self.files = [folder / f.name for f in written]
         return self.files
 

@@ -29,10 +29,13 @@ class FieldSources:
     background: float = 1.0
 
 
-def potential_vector(names, volts, floating=()):
+def potential_vector(names, volts, floating=(), reference=None):
     """Potentials (V) of the conductors `names` from {name: V} (others at 0 V); ModelError if a
-    name is no conductor or a floating conductor is given a potential."""
-    for name, given in (("volts", volts), ("floating", floating)):
+    name is no conductor, a floating conductor is given a potential, or the reference conductor
+    (the 0 V node) is given one or is floating."""
+    given_reference = () if reference is None else (reference,)
+    for name, given in (("volts", volts), ("floating", floating),
+                        ("reference", given_reference)):
         unknown = sorted(set(given) - set(names))
         if unknown:
             raise ModelError(f"{option(name)}: no conductor named {', '.join(unknown)} "
@@ -41,6 +44,12 @@ def potential_vector(names, volts, floating=()):
     if fixed:
         raise ModelError(f"{option('volts')}: {', '.join(fixed)} is floating; its potential is an "
                          "outcome, not an input")
+    if reference in volts:
+        raise ModelError(f"{option('volts')}: {reference} is the reference conductor, the 0 V "
+                         "node; give the others' potentials relative to it")
+    if reference in floating:
+        raise ModelError(f"{option('reference')}: {reference} is floating; the reference must "
+                         "be a terminal")
     return np.array([volts.get(n, 0.0) for n in names])
 
 
@@ -80,6 +89,41 @@ def reduce_floating(result, floating):
         sources=sources)
 
 
+def reduce_reference(result, reference):
+    """The result with the conductor `reference` as the ground node: the others' matrices
+    relative to it, with the far field (infinity, and a ground plane if any) lumped into it.
+
+    With every potential measured from the reference, V'_i = V_i - V_r, and the far field
+    tied to the reference as well, the others' charges are Q_o = C_oo V'_o: their Maxwell
+    matrix is the full one without the reference's row and column. Each one's mutual
+    capacitance to the reference node is then the sum of its row, sum_{j != r} C_ij =
+    (-C_ir) + sum_j C_ij: its capacitance to the reference conductor plus its capacitance to
+    infinity. The reference's own charge is not conserved: it and the far field are one
+    return. The panel charge densities per volt keep every panel (the reference's panels
+    carry the charge induced on it)."""
+    r = result.names.index(reference)
+    keep = [i for i in range(len(result.names)) if i != r]
+    if not keep:
+        raise ModelError(f"{option('reference')}: {reference} is the only terminal; at least "
+                         "one other conductor is needed")
+    sources = result.sources
+    if sources is not None:
+        sources = replace(sources, sigma=sources.sigma[:, keep])
+    return replace(result, names=tuple(result.names[i] for i in keep),
+                   maxwell=result.maxwell[np.ix_(keep, keep)], sigma=result.sigma[:, keep],
+                   potentials=result.potentials[keep], sources=sources, reference=reference,
+                   loss=None if result.loss is None else result.loss[np.ix_(keep, keep)])
+
+
+def reduce_terminals(result, floating=(), reference=None):
+    """The result with the `floating` conductors reduced out (reduce_floating), then the
+    `reference` conductor made the ground node (reduce_reference). The two commute: both
+    hold the reference and the far field at 0 V."""
+    if floating:
+        result = reduce_floating(result, floating)
+    return result if reference is None else reduce_reference(result, reference)
+
+
 @dataclass
 class CapacitanceResult:
     """What an extraction found. Capacitances in F, potentials in V, charges in C, energy in J.
@@ -91,6 +135,8 @@ class CapacitanceResult:
     potential at the given excitation); sigma then includes their induced charge.
     sources: where the field comes from when it is not just the conductors' sigma (dielectric
     interfaces carry bound charge).
+    reference: the conductor taken as the ground node (left out of the matrices; the far field
+    is lumped into it), or None when the ground is infinity (or the ground plane).
     loss: with lossy media, -Im C* (F) of the complex Maxwell matrix C* = maxwell - j loss, so
     that the conductance matrix is G = omega loss at frequency_Hz (I = (G + j omega C) V).
     """
@@ -107,6 +153,14 @@ class CapacitanceResult:
     sources: FieldSources | None = None
     loss: np.ndarray | None = None
     frequency_Hz: float | None = None
+    reference: str | None = None
+
+    @property
+    def ground(self):
+        """What the mutual matrix's diagonal is measured to."""
+        if self.reference is None:
+            return "infinity/ground"
+        return f"reference {self.reference}, far field included"
 
     @property
     def conductance(self):
@@ -145,6 +199,8 @@ class CapacitanceResult:
         """Potential (V) of each named conductor, terminals and floating ones alike."""
         given = dict(zip(self.names, self.potentials))
         given.update(self.floating)
+        if self.reference is not None:
+            given[self.reference] = 0.0
         return np.array([given[n] for n in names])
 
     def panel_sigma(self):
@@ -176,7 +232,7 @@ class CapacitanceResult:
             return lines
 
         lines = block("Maxwell capacitance matrix", self.maxwell, prefix_for(self.maxwell), "F")
-        lines += [""] + block("Mutual capacitance (diagonal: to infinity/ground)", self.mutual,
+        lines += [""] + block(f"Mutual capacitance (diagonal: to {self.ground})", self.mutual,
                               prefix_for(self.maxwell), "F")
         if self.loss is not None:
             g = self.conductance

@@ -2,6 +2,8 @@
 
 import sys
 
+import numpy as np
+
 from bem3d import api
 from bem3d._cli.options import (
     add_model_options,
@@ -36,6 +38,21 @@ def solver_line(solver):
     return line
 
 
+#: F/m in fF/um, the unit the console gives sensitivities in (MEMS and touch-sensor scale).
+FF_PER_UM = 1e-9
+
+
+def sensitivity_lines(names, sensitivity):
+    """Per moved conductor, the largest |dC_ij/dx| of the Maxwell matrix (fF/um), which entry
+    and along which axis."""
+    lines = ["sensitivity: largest |dC_ij/dx| of the Maxwell matrix per conductor moved alone"]
+    for moved, d in sensitivity.items():
+        axis, i, j = np.unravel_index(np.argmax(np.abs(d)), d.shape)
+        lines.append(f"  {moved}: dC[{names[i]},{names[j]}]/d{'xyz'[axis]} = "
+                     f"{d[axis, i, j] / FF_PER_UM:.4g} fF/um")
+    return lines
+
+
 def print_warnings(warnings):
     for w in warnings:
         print(f"warning: {w}", file=sys.stderr)
@@ -49,6 +66,9 @@ def run(args):
         return 0
     print_warnings(result.warnings)
     print(result.table())
+    sensitivity = result.sensitivity
+    if sensitivity is not None:
+        print("\n".join(sensitivity_lines(result.names, sensitivity)))
     print(solver_line(result.solver))
     t = result.timings
     print(f"wall time {t['total']:.2f} s (assembly {t['assembly']:.2f} s, "

@@ -18,6 +18,10 @@ def add_model_options(p):
                    help="infinite grounded plane z = Z (mesh unit), by the method of images")
     p.add_argument("--floating", action="append", default=[], metavar="NAME",
                    help="a conductor with zero net charge and unknown potential; repeatable")
+    p.add_argument("--reference", metavar="NAME",
+                   help="the conductor taken as the ground node (e.g. a meshed ground pour): "
+                        "the matrices of the others are relative to it, infinity (and a "
+                        "ground plane) lumped into it; it is the SPICE subcircuit's REF port")
     p.add_argument("--dielectric", action="append", default=[], metavar="FILE=EPS_R[,TAN_D]",
                    help="a closed dielectric body (mesh file), its relative permittivity and "
                         "optionally its loss tangent; repeatable")
@@ -66,4 +70,5 @@ def model_from_args(args):
     return build_model(args.inputs, units=args.units, volts=parse_volts(args.volts),
                        eps_r=args.eps_r, ground_plane=args.ground_plane, floating=args.floating,
                        dielectrics=parse_dielectrics(args.dielectric),
-                       loss_tangent=args.loss_tangent, frequency=args.frequency, out=args.out)
+                       loss_tangent=args.loss_tangent, frequency=args.frequency,
+                       reference=args.reference, out=args.out)

@@ -125,7 +125,7 @@ def run(args):
                         ground_plane=args.ground_plane, floating=args.floating,
                         dielectrics=parse_dielectrics(args.dielectric),
                         loss_tangent=args.loss_tangent, frequency=args.frequency,
-                        solver=args.solver,
+                        reference=args.reference, solver=args.solver,
                         tol=args.tol, workers=args.workers, threads=args.threads,
                         scheduler=args.scheduler, cache=args.cache,
                         out=args.out or "bem3d_sweep", on_event=_Progress(args.json_lines))

@@ -9,15 +9,17 @@ from bem3d.export.records import write_point_table
 from bem3d.export.vtk import surface_polydata, write_image, write_slice
 
 
-def write_field_files(folder, panels, result, model, field_map, warnings=(), png=False):
+def write_field_files(folder, panels, result, model, field_map, warnings=(), png=False,
+                      extra=None):
     """Write the solve's files with the field keys and arrays added, field.vti, a .vtp per
-    slice, points.csv and (png) the pictures; returns (paths, picture problems).
+    slice, points.csv and (png) the pictures; returns (paths, picture problems). extra: more
+    keys for result.json.
 
     field_map: a post.field_map.FieldMap. A renderer failure is a problem to report, not a
     failed run: the numbers are already written."""
     folder = Path(folder)
-    files = write_outputs(folder, panels, result, model, warnings, field_map.record,
-                          field_map.surface_cells)
+    files = write_outputs(folder, panels, result, model, warnings,
+                          {**(extra or {}), **field_map.record}, field_map.surface_cells)
     target = folder / "field.vti"
     write_image(field_map.grid, field_map.grid_arrays, target)
     files.append(target)

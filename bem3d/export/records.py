@@ -23,6 +23,7 @@ def result_record(result, extra=None):
         "panels": int(result.n_panels),
         "potentials_V": result.potentials.tolist(),
         "floating_potentials_V": result.floating,
+        "reference": result.reference,
         "charges_C": result.charges.tolist(),
         "energy_J": result.energy,
         "checks": result.checks(),
@@ -61,14 +62,20 @@ def write_csv(result, target):
 
 def write_spice(result, target, subckt="bem3d_capacitance"):
     """A .SUBCKT of the mutual capacitances, and with lossy media a resistor 1/G for each
-    mutual conductance; port REF is the far/ground reference. Nodes are the conductor names
+    mutual conductance; port REF is the far/ground reference, or the reference conductor with
+    the far field lumped into it. Nodes are the conductor names
     made safe (names.spice_nodes; a comment lists those that differ); elements are numbered
     by conductor, C_i_j and R_i_j, so no two get the same name."""
     nodes = spice_nodes(result.names)
     mutual = result.mutual
     conductance = result.mutual_conductance
-    lines = [f"* mutual capacitances from bem3d {__version__}; {result.n_panels} panels",
-             "* REF is the reference at infinity (or ground); tie it to your circuit ground."]
+    lines = [f"* mutual capacitances from bem3d {__version__}; {result.n_panels} panels"]
+    if result.reference is None:
+        lines.append("* REF is the reference at infinity (or ground); tie it to your circuit "
+                     "ground.")
+    else:
+        lines.append(f"* REF is the conductor {json.dumps(result.reference)}, the reference, "
+                     "with the far field (infinity, ground plane) lumped into it.")
     if conductance is not None:
         lines += [f"* the resistors give the dielectric loss at {result.frequency_Hz:.6g} Hz "
                   "only (G grows in proportion to frequency for a constant loss tangent);",

@@ -108,10 +108,11 @@ class Convergence:
 
 def converge(panels, refinements=2, smooth=True, crease_degrees=CREASE_DEGREES, volts=None,
              eps_r=1.0, solver="auto", tol=1e-7, progress=False, source="mesh", ground_z=None,
-             floating=(), dielectrics=(), loss_tangent=0.0, frequency=None):
+             floating=(), dielectrics=(), loss_tangent=0.0, frequency=None, reference=None):
     """Solve on `panels` (m) and on 1 or 2 midpoint subdivisions of it; extrapolate.
 
-    volts, eps_r, solver, tol, ground_z (m), floating, dielectrics, loss_tangent, frequency: as for
+    volts, eps_r, solver, tol, ground_z (m), floating, dielectrics, loss_tangent, frequency,
+    reference: as for
     solve.conductors.solve_panels; the dielectric bodies' meshes are refined with the conductors'.
     source: the file name(s) that geometry errors of the refined meshes start with.
     progress: print each mesh's size and the solver's progress on stderr."""
@@ -133,7 +134,7 @@ def converge(panels, refinements=2, smooth=True, crease_degrees=CREASE_DEGREES, 
         results[level] = solve_panels(meshes[level], volts, eps_r, PairRules(), solver, tol,
                                       progress, ground_z=ground_z, floating=floating,
                                       dielectrics=bodies[level], loss_tangent=loss_tangent,
-                                      frequency=frequency)
+                                      frequency=frequency, reference=reference)
     return Convergence(meshes, results, richardson([r.maxwell for r in results]),
                        richardson([r.mutual for r in results]), smooth)
 
@@ -153,5 +154,5 @@ def converge_model(model, refinements=2, smooth=True, crease_degrees=CREASE_DEGR
     conv = converge(panels, refinements, smooth, crease_degrees, model.volts, medium["eps_r"],
                     solver, tol, progress, mesh_sources(model, panels), model.ground_z_m,
                     model.floating, read_bodies(model.dielectrics, model.length_unit),
-                    medium["loss_tangent"], medium["frequency"])
+                    medium["loss_tangent"], medium["frequency"], model.reference)
     return dataclasses.replace(conv, warnings=list(warnings) + model.notes)

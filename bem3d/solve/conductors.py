@@ -14,7 +14,7 @@ from bem3d.operators.cache import OperatorCache, cache_key
 from bem3d.operators.dense import DenseOperator
 from bem3d.operators.hmatrix import Compression, HMatrixOperator, HMatrixPlan
 from bem3d.operators.rules import PairRules
-from bem3d.results import CapacitanceResult, potential_vector, reduce_floating
+from bem3d.results import CapacitanceResult, potential_vector, reduce_terminals
 from bem3d.solve.backend import (
     MAX_ITERATIONS,
     SUBDOMAIN_SIZE,
@@ -41,7 +41,7 @@ def _largest(values):
 def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto", tol=1e-7,
                  progress=False, ground_z=None, floating=(), dielectrics=(), *, backend="auto",
                  compression=None, cache=False, cache_dir=None, loss_tangent=0.0,
-                 frequency=None):
+                 frequency=None, reference=None):
     """Capacitance of the conductors in `panels` (metres) in a medium of relative permittivity eps_r.
 
     volts: {conductor name: V}; conductors not named are at 0 V. solver: 'direct' (Cholesky),
@@ -58,9 +58,10 @@ def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto"
     floating: names of conductors with zero net charge and unknown potential.
     dielectrics: dielectric.DielectricBody list; eps_r is then the background around them.
     loss_tangent: the background's; with it or lossy bodies, frequency (Hz) is needed and the
-    result carries the conductance matrix G at that frequency (CapacitanceResult.loss)."""
+    result carries the conductance matrix G at that frequency (CapacitanceResult.loss).
+    reference: the conductor taken as the ground node (results.reduce_reference), or None."""
     volts = dict(volts or {})
-    potentials = potential_vector(panels.names, volts, floating)
+    potentials = potential_vector(panels.names, volts, floating, reference)
     if ground_z is not None:
         check_ground_plane(panels, ground_z)
     lossy = check_loss(loss_tangent, frequency, dielectrics)
@@ -74,7 +75,7 @@ def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto"
             result.frequency_Hz = frequency
             result.solver["loss_tangents"] = {"background": loss_tangent, **{
                 b.name: b.loss_tangent for b in dielectrics}}
-        return reduce_floating(result, floating) if floating else result
+        return reduce_terminals(result, floating, reference)
     have = available_memory()
     backend, solver = choose_backend(len(panels), backend, solver, have)
     rhs = panels.excitation()
@@ -105,7 +106,7 @@ def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto"
     if lossy:       # one lossy medium everywhere: C* = (1 - j tan d) C
         result.loss, result.frequency_Hz = loss_tangent * result.maxwell, frequency
         result.solver["loss_tangents"] = {"background": loss_tangent}
-    return reduce_floating(result, floating) if floating else result
+    return reduce_terminals(result, floating, reference)
 
 
 def check_loss(loss_tangent, frequency, dielectrics=()):

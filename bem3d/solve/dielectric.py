@@ -275,11 +275,17 @@ def _interface_rows(out, system, sources):
     _normal_field_rows(out, system.interfaces, sources, system.ground_z)
 
 
-def _normal_field_rows(out, tests, sources, ground_z):
+def _normal_field_rows(out, tests, sources, ground_z, direction=None):
     """Fill out (m, n): over each test panel's points, the weighted sum of n_k . (field of a
     unit charge density on each source panel), less that of the source's mirror image when
-    there is a grounded plane z = ground_z."""
-    assemble_normal_field(out, normal_field(tests, sources, TEST_POINTS, ground_z))
+    there is a grounded plane z = ground_z. direction: a unit vector to take the field along
+    instead of each test panel's normal (a flat panel's own in-plane field averages to zero
+    over it, as its normal field does)."""
+    data = normal_field(tests, sources, TEST_POINTS, ground_z)
+    if direction is not None:
+        data = data._replace(test_normals=np.tile(np.asarray(direction, float),
+                                                  (len(tests), 1)))
+    assemble_normal_field(out, data)
 
 
 def union_panels(system):
@@ -312,20 +318,21 @@ def free_charge(system, both, total):
         a, b = system.eps_out[faced, None], system.eps_back[faced, None]
         tests = Panels(conductors.vertices[faced], conductors.owner[faced], conductors.names)
         # eps0 E_pv.n = (1/4 pi) sum_l <n . g_l> sigma_l (the same rows as the interfaces')
-        normal = _normal_field_product(tests, both, system.ground_z, total) / (4 * math.pi)
+        normal = normal_field_product(tests, both, system.ground_z, total) / (4 * math.pi)
         free[faced] = 0.5 * (a + b) * sigma[faced] + (a - b) * normal
     return free
 
 
-def _normal_field_product(tests, sources, ground_z, total, rows=512):
+def normal_field_product(tests, sources, ground_z, total, rows=512, direction=None):
     """sum_l <n_i . g_l>_i total_l for every test panel i (the interface rows' normal field,
-    images subtracted), assembled a block of rows at a time so memory stays bounded."""
+    images subtracted), assembled a block of rows at a time so memory stays bounded.
+    direction: the field along this unit vector instead (see _normal_field_rows)."""
     out = np.empty((len(tests), total.shape[1]), total.dtype)
     for start in range(0, len(tests), rows):
         block = slice(start, min(start + rows, len(tests)))
         part = Panels(tests.vertices[block], tests.owner[block], tests.names)
         field = np.empty((len(part), len(sources)))
-        _normal_field_rows(field, part, sources, ground_z)
+        _normal_field_rows(field, part, sources, ground_z, direction)
         out[block] = field @ total
     return out
 

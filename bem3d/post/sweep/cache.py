@@ -1,5 +1,6 @@
 """Solved matrices kept without the potentials (``cache/<solve key>.npz``), and the potentials
-applied afterwards: neither the potentials nor floating conductors change the full matrix."""
+applied afterwards: neither the potentials, floating conductors nor the reference change the
+full matrix."""
 
 import dataclasses
 import io
@@ -10,7 +11,7 @@ import numpy as np
 
 from bem3d.base.errors import Bem3dError
 from bem3d.base.files import require_writable, sweep_leftovers, write_bytes
-from bem3d.results import CapacitanceResult, potential_vector, reduce_floating
+from bem3d.results import CapacitanceResult, potential_vector, reduce_terminals
 
 #: What numpy and zipfile raise on a damaged entry (a damaged member header gives
 #: RuntimeError or NotImplementedError).
@@ -75,9 +76,10 @@ def load_cached(path, panels, warn):
     return result
 
 
-def with_potentials(result, volts, floating=()):
+def with_potentials(result, volts, floating=(), reference=None):
     """The full result at the potentials {name: V}, the `floating` conductors then reduced out
-    (results.reduce_floating): neither changes the full matrix, so neither needs a solve."""
+    and the `reference` conductor made the ground node (results.reduce_terminals): none of
+    these changes the full matrix, so none needs a solve."""
     result = dataclasses.replace(result, potentials=potential_vector(result.names, volts,
-                                                                     floating))
-    return reduce_floating(result, floating) if floating else result
+                                                                     floating, reference))
+    return reduce_terminals(result, floating, reference)

@@ -91,7 +91,8 @@ def _file_digest(path, memo):
 
 def case_keys(model, case, solver, tol, memo):
     """(solve key, case key): the content hash of what decides the full Maxwell matrix, and that
-    plus what decides the output files (potentials, floating conductors, SPICE name)."""
+    plus what decides the output files (potentials, floating and reference conductors, SPICE
+    name)."""
     solve = _digest({
         "bem3d": __version__,
         "meshes": [[Path(m).name, _file_digest(m, memo)] for m in model.meshes],
@@ -104,7 +105,7 @@ def case_keys(model, case, solver, tol, memo):
         "steps": [[m.kind, list(m.names), m.axis, m.pivot, v] for m, v in case.steps],
         "solver": solver, "tol": tol, "rules": PairRules().as_dict()})
     return solve, _digest({"solve": solve, "volts": model.volts, "floating": model.floating,
-                           "spice_name": model.spice_name})
+                           "reference": model.reference, "spice_name": model.spice_name})
 
 
 def read_base(model, moves, entries):
@@ -115,7 +116,10 @@ def read_base(model, moves, entries):
         conductor_indices(panels, move.names)
     for _, a, b in entries:
         conductor_indices(panels, (a, b))
-    potential_vector(panels.names, model.volts, model.floating)
+        if model.reference in (a, b):
+            raise ModelError(f"entry {a}:{b}: {model.reference} is the reference conductor, "
+                             "left out of the matrices")
+    potential_vector(panels.names, model.volts, model.floating, model.reference)
     return panels, warnings, read_bodies(model.dielectrics, model.length_unit)
 
 

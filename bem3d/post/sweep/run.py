@@ -154,7 +154,7 @@ def run_sweep(request: SweepRequest, on_event=None) -> SweepOutcome:
 
     def finish(case, model, keys, panels, warnings, result, how):
         case_folder = folder / "cases" / case.label
-        result = with_potentials(result, model.volts, model.floating)
+        result = with_potentials(result, model.volts, model.floating, model.reference)
         with staged_outputs(case_folder, model.files(), force=True) as stage:
             written = write_outputs(stage, panels, result, model, warnings)
         clear_stale(case_folder, {f.name for f in written})
