@@ -33,7 +33,7 @@ from bem3d.solve.estimate import describe_estimate, estimate_seconds
 @dataclass(frozen=True)
 class Geometry:
     """Meshes as read: conductor names, panels (corners in `units`), reader warnings, and the
-    check-mesh report (SI units)."""
+    check-mesh report (SI quantities, its problems' lengths in `units`)."""
 
     names: tuple
     panels: Panels
@@ -51,7 +51,8 @@ def read(inputs, *, units="m", check=True):
     paths = [inputs] if isinstance(inputs, (str, Path)) else list(inputs)
     panels, warnings = read_conductors(paths, units=units, check=check)
     report = mesh_summary(panels, source=[str(p) for p in paths] if len(paths) > 1
-                          else str(paths[0]))
+                          else str(paths[0]), unit=units)
+    report["length_unit"] = units
     report["problems"] = warnings + report["problems"]
     return Geometry(panels.names, panels.transformed(scale=1.0 / LENGTH_UNITS[units]), units,
                     warnings, report)

@@ -8,6 +8,7 @@ from bem3d._cli.options import (
     add_run_guards,
     add_solver_options,
     model_from_args,
+    print_units_hint,
     solver_settings,
 )
 from bem3d.export.records import CAUTION
@@ -47,6 +48,7 @@ def run(args):
                          out=model.output_folder, force=args.force, progress=not args.quiet)
     if args.quiet:
         return 0
+    print_units_hint(args, result.panels.vertices)
     print_warnings(result.warnings)
     print(result.table())
     print(solver_line(result.solver))

@@ -10,6 +10,7 @@ from bem3d._cli.options import (
     add_run_guards,
     add_solver_options,
     model_from_args,
+    print_units_hint,
     solver_settings,
 )
 from bem3d.base.constants import LENGTH_UNITS
@@ -52,6 +53,7 @@ def run(args):
                        max_panels=args.max_panels, out=model.output_folder, force=args.force,
                        progress=not args.quiet)
     if not args.quiet:
+        print_units_hint(args, result.panels.vertices)
         print_field_summary(result)
     return 0
 

@@ -132,5 +132,6 @@ def case_panels(case, model, base, unit):
             panels, move.names, move.kind, value * (unit if move.kind == "translate" else 1.0),
             move.axis, None if move.pivot is None else np.multiply(move.pivot, unit))
     if case.steps:
-        warnings = list(warnings) + check_geometry(panels, mesh_sources(model, panels))
+        warnings = list(warnings) + check_geometry(panels, mesh_sources(model, panels),
+                                                   model.length_unit)
     return panels, warnings, bodies
