@@ -406,3 +406,24 @@ def test_check_mesh_speaks_the_mesh_unit_and_hints_at_millimetres(tmp_path, caps
     assert code == 0 and "bounding box [m]" in out
     hints = [line for line in err.splitlines() if line.startswith("hint:")]
     assert len(hints) == 1 and "--units mm" in hints[0]
+
+
+def test_usage_errors_carry_one_prefix(capsys):
+    for argv, words in (([], "required: command"), (["extract"], "extract: ")):
+        with pytest.raises(SystemExit) as stop:
+            run(argv, capsys)
+        err = capsys.readouterr().err
+        lines = err.strip().splitlines()
+        assert stop.value.code == 2 and len(lines) == 1 and words in lines[0], err
+        assert lines[0].startswith("bem3d: error: ") and lines[0].count("bem3d") == 1
+
+
+def test_closed_pipe_ends_quietly(two_spheres):
+    # the reader goes away before bem3d writes (as `| head -1` does after its line): no
+    # traceback and no error line, and the exit code of a program ended by SIGPIPE (128 + 13,
+    # POSIX shells' convention)
+    child = subprocess.Popen([sys.executable, "-m", "bem3d", "check-mesh", *map(str, two_spheres),
+                              "--units", "mm"], stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    child.stdout.close()
+    err = child.stderr.read().decode()
+    assert child.wait() == 141 and err == "", err

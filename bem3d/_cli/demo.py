@@ -25,24 +25,34 @@ def add_parser(subparsers):
                    help="the two-key touch keypad: board on a ground layer, copper keys, cover, "
                         "and a finger phantom swept towards one key")
     p.add_argument("--force", action="store_true",
-                   help="replace the results of an earlier demo in the folder")
+                   help="write into a folder holding another run's results (an earlier "
+                        "demo's own are replaced without it)")
     return p
+
+
+def earlier_demo(folder, marker):
+    """True if folder holds the file an earlier run of this demo wrote first (its mesh or model
+    file): the demo then replaces its own results, as a user re-running it expects; a folder
+    holding anything else's results still needs --force."""
+    return (Path(folder) / marker).is_file()
 
 
 def run(args):
     if args.stack:
-        return run_keypad(args.folder or Path("bem3d_stack_demo"), args.force)
+        folder = args.folder or Path("bem3d_stack_demo")
+        return run_keypad(folder, args.force or earlier_demo(folder, "keypad.toml"))
     folder = args.folder or Path("bem3d_demo")
     mesh = folder / "sensor_head.msh"
+    force = args.force or earlier_demo(folder, mesh.name)
     model = Model(meshes=[mesh], length_unit=sensor_head.LENGTH_UNIT,
                   volts=dict(sensor_head.VOLTS), output_folder=folder, spice_name="sensor_head")
-    check_output_folder(folder, [], output_names(model), args.force)
+    check_output_folder(folder, [], output_names(model), force)
     sensor_head.write_demo_mesh(mesh)
     print(f"demo: capacitive sensor head (two sense pads, drive pad, guard ring, lid); "
           f"drive at {sensor_head.VOLTS['drive']:g} V, others at 0 V")
     # the board face z = 0 carries the pads: slice just above it, between grid planes
     result = api.field(model, slices=[("z", sensor_head.SLICE_Z_MM)], png=True, cache=False,
-                       out=folder, force=args.force, progress=True)
+                       out=folder, force=force, progress=True)
     print_field_summary(result)
     print(f"demo files are in {folder.resolve()}")
     return 0
