@@ -20,6 +20,10 @@ def add_parser(subparsers):
     add_model_options(p)
     add_run_guards(p)
     add_solver_options(p)
+    p.add_argument("--report", action="store_true",
+                   help="also write report.html: one self-contained page (model, matrices, "
+                        "couplings, warnings, solver record, cautions) that opens offline "
+                        "and prints")
     p.add_argument("--quiet", action="store_true", help="print nothing but errors")
     return p
 
@@ -45,7 +49,8 @@ def print_warnings(warnings):
 def run(args):
     model = model_from_args(args)
     result = api.extract(model, **solver_settings(args), max_panels=args.max_panels,
-                         out=model.output_folder, force=args.force, progress=not args.quiet)
+                         out=model.output_folder, force=args.force, progress=not args.quiet,
+                         report=args.report)
     if args.quiet:
         return 0
     print_units_hint(args, result.panels.vertices)
