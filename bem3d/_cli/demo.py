@@ -10,8 +10,8 @@ from bem3d._cli.field import print_field_summary
 from bem3d.base.files import check_output_folder, write_text
 from bem3d.demo import keypad, sensor_head
 from bem3d.export.outputs import output_names
-from bem3d.export.report import REPORT_NAME
 from bem3d.export.records import CAUTION
+from bem3d.export.report import REPORT_NAME
 from bem3d.model import Model, load_model
 
 
