@@ -33,7 +33,7 @@ from bem3d.solve.estimate import describe_estimate, estimate_seconds
 @dataclass(frozen=True)
 class Geometry:
     """Meshes as read: conductor names, panels (corners in `units`), reader warnings, and the
-    check-mesh report (SI units)."""
+    check-mesh report (SI quantities, its problems' lengths in `units`)."""
 
     names: tuple
     panels: Panels
@@ -51,7 +51,8 @@ def read(inputs, *, units="m", check=True):
     paths = [inputs] if isinstance(inputs, (str, Path)) else list(inputs)
     panels, warnings = read_conductors(paths, units=units, check=check)
     report = mesh_summary(panels, source=[str(p) for p in paths] if len(paths) > 1
-                          else str(paths[0]))
+                          else str(paths[0]), unit=units)
+    report["length_unit"] = units
     report["problems"] = warnings + report["problems"]
     return Geometry(panels.names, panels.transformed(scale=1.0 / LENGTH_UNITS[units]), units,
                     warnings, report)
@@ -120,7 +121,7 @@ def _solve(model, settings, panels, progress, start):
 def extract(inputs, *, units=None, volts=None, eps_r=None, ground_plane=None, floating=(),
             dielectrics=(), loss_tangent=None, frequency=None, reference=None, backend="auto", solver="auto", tol=1e-7, block_tol=1e-5,
             cache=True, cache_dir=None, max_panels=None, out=None, force=False,
-            progress=False):
+            progress=False, report=False):
     """Solve for the capacitance matrices of the conductors in `inputs`: a Result.
 
     inputs: mesh paths (one conductor per file, or groups within one file), one .toml model
@@ -135,7 +136,8 @@ def extract(inputs, *, units=None, volts=None, eps_r=None, ground_plane=None, fl
     the CG relative residual; block_tol: the compressed backend's block accuracy; cache,
     cache_dir: the operator cache. max_panels: refuse a larger model before any assembly.
     out: also write the result files into this folder (refused before solving if it holds an
-    earlier run's files, unless force). progress: report progress on stderr."""
+    earlier run's files, unless force). progress: report progress on stderr. report: with
+    out, also write report.html (one self-contained page for a design review)."""
     start = time.perf_counter()
     model = model_of(inputs, units=units, volts=volts, eps_r=eps_r, ground_plane=ground_plane,
                      floating=floating, dielectrics=dielectrics, loss_tangent=loss_tangent,
@@ -148,15 +150,15 @@ def extract(inputs, *, units=None, volts=None, eps_r=None, ground_plane=None, fl
     result = Result(_solve(model, settings, panels, progress, start), panels, model,
                     warnings + model.notes)
     if out is not None:
-        result.save(out, force)
+        result.save(out, force, report)
     return result
 
 
 def field(inputs, *, box=None, margin=0.5, spacing=None, points=41, slices=(), at=None,
           unit_fields=False, png=False, units=None, volts=None, eps_r=None, ground_plane=None,
           floating=(), dielectrics=(), loss_tangent=None, frequency=None, reference=None,
-          backend="auto", solver="auto", tol=1e-7, block_tol=1e-5, cache=True, cache_dir=None, max_panels=None, out=None, force=False,
-          progress=False):
+          backend="auto", solver="auto", tol=1e-7, block_tol=1e-5, cache=True, cache_dir=None,
+          max_panels=None, out=None, force=False, progress=False, report=False):
     """Solve as extract does, then evaluate the potential, field and energy density: a
     FieldResult with the energy balance, peak fields, forces and the evaluated arrays.
 
@@ -164,7 +166,9 @@ def field(inputs, *, box=None, margin=0.5, spacing=None, points=41, slices=(), a
     widened by margin times its largest size), spacing or points (per axis: N or
     (NX, NY, NZ)), slices ('z=0.25' or ('z', 0.25)), at (a CSV file of x, y, z or an (m, 3)
     array). unit_fields: also each conductor's field at 1 V. png: pictures with the files.
+    report: with out, also write report.html, the pictures in it (report implies png).
     Other settings as in extract."""
+    png = png or report
     start = time.perf_counter()
     model = model_of(inputs, units=units, volts=volts, eps_r=eps_r, ground_plane=ground_plane,
                      floating=floating, dielectrics=dielectrics, loss_tangent=loss_tangent,
@@ -189,7 +193,7 @@ def field(inputs, *, box=None, margin=0.5, spacing=None, points=41, slices=(), a
     result = FieldResult(solved, panels, model, warnings + model.notes, field_map, png,
                          request.point_file)
     if out is not None:
-        result.save(out, force)
+        result.save(out, force, report)
     return result
 
 

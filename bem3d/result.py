@@ -8,6 +8,8 @@ from bem3d.base.files import check_output_folder, staged_outputs
 from bem3d.base.units import prefix_for
 from bem3d.export.field_files import write_field_files
 from bem3d.export.outputs import output_names, write_outputs
+from bem3d.export.report import REPORT_NAME, write_report
+from bem3d.post.field_map import AIR_BREAKDOWN_V_PER_M
 from bem3d.post.sensitivity import maxwell_sensitivity, sensitivity_problem
 
 
@@ -137,14 +139,21 @@ class Result:
         """Every file the model reads (meshes, dielectric bodies, the model file)."""
         return self.model.files()
 
-    def save(self, folder, force=False):
-        """Write result.json, capacitance.csv, the SPICE subcircuit and surface.vtp into
-        folder, all together or none; returns their paths."""
+    def _planned(self, report):
+        return output_names(self.model) + ([REPORT_NAME] if report else [])
+
+    def save(self, folder, force=False, report=False):
+        """Write result.json, capacitance.csv, the SPICE subcircuit and surface.vtp (and with
+        report, report.html) into folder, all together or none; returns their paths."""
         folder = Path(folder)
-        check_output_folder(folder, self.inputs(), output_names(self.model), force)
+        check_output_folder(folder, self.inputs(), self._planned(report), force)
         with staged_outputs(folder, self.inputs(), force) as stage:
             written = write_outputs(stage, self._panels_m, self._solved, self.model,
                                     self.warnings, self._record_keys())
+            if report:
+                written.append(stage / REPORT_NAME)
+                write_report(written[-1], self._panels_m, self._solved, self.model,
+                             self.warnings)
         self.files = [folder / f.name for f in written]
         return self.files
 
@@ -168,15 +177,28 @@ class FieldResult(Result):
         """{column: values} at the listed points, or None."""
         return None if self.field_map.listed is None else self.field_map.listed[1]
 
-    def save(self, folder, force=False):
-        """Write the solve's files plus field.vti, the slices, points.csv and the pictures."""
+    def save(self, folder, force=False, report=False):
+        """Write the solve's files plus field.vti, the slices, points.csv and the pictures
+        (and with report, report.html with the pictures in it)."""
         folder = Path(folder)
         inputs = self.inputs() + ([self.point_file] if self.point_file else [])
-        check_output_folder(folder, inputs, output_names(self.model), force)
+        check_output_folder(folder, inputs, self._planned(report), force)
         with staged_outputs(folder, inputs, force) as stage:
             written, self.picture_problems = write_field_files(
                 stage, self._panels_m, self._solved, self.model, self.field_map,
-                self.warnings, self.png, self._record_keys())
+                self.warnings, self.png or report, self._record_keys())
+            if report:
+                pictures = [(PICTURE_TITLES.get(f.name, f.stem), f) for f in written
+                            if f.suffix == ".png"]
+                written.append(stage / REPORT_NAME)
+                write_report(written[-1], self._panels_m, self._solved, self.model,
+                             self.warnings + self.picture_problems, self.record, pictures,
+                             AIR_BREAKDOWN_V_PER_M)
         self.files = [folder / f.name for f in written]
         return self.files
+
+
+#: Captions of the field run's pictures in report.html.
+PICTURE_TITLES = {"surface_charge.png": "surface charge density on the conductors",
+                  "field_slice.png": "field magnitude on the first slice"}
 

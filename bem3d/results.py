@@ -15,6 +15,53 @@ def mutual_from_maxwell(maxwell):
     return mutual
 
 
+#: Couplings the console lists; the rest are counted and left to capacitance.csv.
+CONSOLE_COUPLINGS = 20
+
+
+@dataclass(frozen=True)
+class Coupling:
+    """The two-terminal capacitance between conductors a and b (F), and its share of each one's
+    self capacitance (the Maxwell diagonal: its capacitance with every other conductor at 0 V)."""
+
+    a: str
+    b: str
+    capacitance: float
+    share_a: float
+    share_b: float
+
+
+def ranked_couplings(names, maxwell):
+    """Coupling of every pair of conductors, largest capacitance first (ties in matrix order)."""
+    c = np.asarray(maxwell, dtype=float)
+    pairs = [Coupling(names[i], names[j], float(-c[i, j]), float(-c[i, j] / c[i, i]),
+                      float(-c[i, j] / c[j, j]))
+             for i in range(len(names)) for j in range(i + 1, len(names))]
+    return sorted(pairs, key=lambda p: -p.capacitance)
+
+
+def coupling_lines(names, maxwell, limit=CONSOLE_COUPLINGS, ground="infinity/ground"):
+    """The ranked couplings as text lines in one readable unit (at most `limit` pairs), then
+    each conductor's capacitance to `ground` (infinity or ground, or the reference)."""
+    scale, prefix = prefix_for(maxwell)
+    couplings = ranked_couplings(names, maxwell)
+    width = max(12, 2 * max(len(n) for n in names) + 5)
+    lines = [f"Couplings, largest first [{prefix}F]",
+             f"{'pair':<{width}}{'C':>12}{'share of C_a':>15}{'share of C_b':>15}"]
+    for p in couplings[:limit]:
+        lines.append(f"{p.a + ' - ' + p.b:<{width}}{p.capacitance / scale:>#12.5g}"
+                     f"{p.share_a:>15.2%}{p.share_b:>15.2%}")
+    if len(couplings) > limit:
+        lines.append(f"... and {len(couplings) - limit} smaller couplings (capacitance.csv "
+                     "holds every one)")
+    if not couplings:
+        lines.append("(one conductor: no couplings)")
+    to_ground = np.sum(maxwell, axis=1)
+    lines.append(f"to {ground}: " + ", ".join(
+        f"{n} {v / scale:#.5g}" for n, v in zip(names, to_ground)) + f" {prefix}F")
+    return lines
+
+
 @dataclass(frozen=True)
 class FieldSources:
     """What radiates the field: panels (conductors first, then any dielectric interfaces), their
@@ -220,7 +267,8 @@ class CapacitanceResult:
         }
 
     def table(self):
-        """The capacitance matrices as text, in one readable unit."""
+        """The Maxwell matrix and the couplings ranked by size as text, in one readable unit
+        (the full mutual matrix is in the files)."""
         width = max(12, max(len(n) for n in self.names) + 2)
 
         def block(title, matrix, scaled, unit):
@@ -232,8 +280,7 @@ class CapacitanceResult:
             return lines
 
         lines = block("Maxwell capacitance matrix", self.maxwell, prefix_for(self.maxwell), "F")
-        lines += [""] + block(f"Mutual capacitance (diagonal: to {self.ground})", self.mutual,
-                              prefix_for(self.maxwell), "F")
+        lines += [""] + coupling_lines(self.names, self.maxwell, ground=self.ground)
         if self.loss is not None:
             g = self.conductance
             lines += [""] + block(f"Maxwell conductance matrix at {self.frequency_Hz:.6g} Hz", g,

@@ -68,8 +68,12 @@ def test_extract_writes_every_output(two_spheres, tmp_path, capsys):
     surface = pv.read(out / "surface.vtp")
     assert surface.n_cells == 2 * 288
     assert set(surface.cell_data.keys()) >= {"sigma", "conductor", "potential"}
-    # sigma integrates to the conductor charges (C/m^2 times m^2)
-    areas = surface.compute_cell_sizes()["Area"]
+    # corners in the mesh unit: the two unit spheres (mm) centred 3 apart on x
+    np.testing.assert_allclose(surface.bounds, [-1, 4, -1, 1, -1, 1], atol=1e-9)
+    assert list(surface.field_data["length_unit"]) == ["mm"]
+    assert list(surface.field_data["conductor_names"]) == record["surface_conductors"]
+    # sigma integrates to the conductor charges (C/m^2 times mm^2 in m^2)
+    areas = surface.compute_cell_sizes()["Area"] * 1e-6
     q_left = np.sum((surface.cell_data["sigma"] * areas)[surface.cell_data["conductor"] == 0])
     assert q_left == pytest.approx(record["charges_C"][0], rel=1e-6)
 
@@ -239,13 +243,17 @@ def test_field_writes_grid_slices_points_surface_and_pictures(two_spheres, tmp_p
     # inside the left sphere (at 1 V) phi is 1 V (closed conductor)
     assert grid.point_data["phi"][centre] == pytest.approx(1.0, abs=0.02)
 
-    for name in ("slice_z_0.vtp", "slice_x_0.0015.vtp"):
+    # slices named and placed in the mesh unit (mm)
+    for name, axis, value in (("slice_z_0mm.vtp", 2, 0.0), ("slice_x_1.5mm.vtp", 0, 1.5)):
         plane = pv.read(out / name)
         assert plane.n_points == 21 * 21 and "energy_density" in plane.point_data
+        assert plane.bounds[2 * axis] == pytest.approx(value)
+        assert list(plane.field_data["length_unit"]) == ["mm"]
+    assert list(grid.field_data["length_unit"]) == ["mm"]
     rows = list(csv.reader((out / "points.csv").open()))
-    assert rows[0][:4] == ["x_m", "y_m", "z_m", "phi_V"] and len(rows) == 4
+    assert rows[0][:4] == ["x_mm", "y_mm", "z_mm", "phi_V"] and len(rows) == 4
     assert float(rows[1][3]) == pytest.approx(1.0, abs=0.02)          # inside the left sphere
-    assert float(rows[3][0]) == 0 and float(rows[3][2]) == pytest.approx(5e-3)   # mm -> m
+    assert float(rows[3][0]) == 0 and float(rows[3][2]) == pytest.approx(5.0)    # as given
     surface = pv.read(out / "surface.vtp")
     assert {"sigma", "E_normal", "E_face_max", "force_density"} <= set(surface.cell_data.keys())
     np.testing.assert_allclose(surface.cell_data["E_normal"], surface.cell_data["sigma"] / EPS0)
@@ -359,3 +367,63 @@ def test_bad_environment_options_exit_2(tmp_path, capsys, extra, words):
     code, _, err = run(["extract", ball, "--out", out] + [e.format(d=tmp_path) for e in extra],
                        capsys)
     assert code == 2 and words in err and not out.exists()
+
+
+def test_surface_index_and_names_follow_result_json_with_a_floating_conductor(tmp_path,
+                                                                               capsys):
+    # three spheres on the x axis, the middle one floating: it leaves the matrices, so the
+    # surface's conductor index counts result.json's surface_conductors (matrix order, then
+    # the floating ones); each index's panels sit around the centre of the sphere it names
+    centres = {"left": 0.0, "mid": 3.0, "right": 6.0}
+    files = [write_mesh(tmp_path / f"{n}.stl", [shapes.octahedral_sphere(1.0, 4, (x, 0, 0))])
+             for n, x in centres.items()]
+    out = tmp_path / "res"
+    code, _, err = run(["extract", *files, "--units", "mm", "--floating", "mid", "--volts",
+                        "left=1", "--out", out, "--quiet"], capsys)
+    assert code == 0, err
+    record = json.loads((out / "result.json").read_text())
+    assert record["conductors"] == ["left", "right"]
+    assert record["surface_conductors"] == ["left", "right", "mid"]
+    surface = pv.read(out / "surface.vtp")
+    assert list(surface.field_data["conductor_names"]) == record["surface_conductors"]
+    index = surface.cell_data["conductor"]
+    centres_x = surface.cell_centers().points[:, 0]
+    for k, name in enumerate(record["surface_conductors"]):
+        assert np.mean(centres_x[index == k]) == pytest.approx(centres[name], abs=0.05)
+    mid = index == 2
+    np.testing.assert_allclose(surface.cell_data["potential"][mid],
+                               record["floating_potentials_V"]["mid"])
+
+
+def test_check_mesh_speaks_the_mesh_unit_and_hints_at_millimetres(tmp_path, capsys):
+    # a 2 mm sphere drawn in millimetres: with --units mm the report is in mm; without, the
+    # model reads as 2 m across and a one-line hint names --units mm
+    mesh = write_mesh(tmp_path / "ball.stl", [shapes.octahedral_sphere(1.0, 4)])
+    code, out, err = run(["check-mesh", mesh, "--units", "mm"], capsys)
+    assert code == 0 and "bounding box [mm]: (-1, -1, -1) .. (1, 1, 1)" in out
+    assert "mm^2" in out and "hint" not in err
+    code, out, err = run(["check-mesh", mesh], capsys)
+    assert code == 0 and "bounding box [m]" in out
+    hints = [line for line in err.splitlines() if line.startswith("hint:")]
+    assert len(hints) == 1 and "--units mm" in hints[0]
+
+
+def test_usage_errors_carry_one_prefix(capsys):
+    for argv, words in (([], "required: command"), (["extract"], "extract: ")):
+        with pytest.raises(SystemExit) as stop:
+            run(argv, capsys)
+        err = capsys.readouterr().err
+        lines = err.strip().splitlines()
+        assert stop.value.code == 2 and len(lines) == 1 and words in lines[0], err
+        assert lines[0].startswith("bem3d: error: ") and lines[0].count("bem3d") == 1
+
+
+def test_closed_pipe_ends_quietly(two_spheres):
+    # the reader goes away before bem3d writes (as `| head -1` does after its line): no
+    # traceback and no error line, and the exit code of a program ended by SIGPIPE (128 + 13,
+    # POSIX shells' convention)
+    child = subprocess.Popen([sys.executable, "-m", "bem3d", "check-mesh", *map(str, two_spheres),
+                              "--units", "mm"], stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    child.stdout.close()
+    err = child.stderr.read().decode()
+    assert child.wait() == 141 and err == "", err

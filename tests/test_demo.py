@@ -52,6 +52,20 @@ def test_stack_demo_end_to_end(tmp_path, capsys):
     assert loss[0] > 0
     model = load_model(folder / "keypad.toml")
     assert model.lossy and model.ground_plane_z == 0.0 and len(model.dielectrics) == 2
-    # refuses to overwrite without --force, in one line
+    # a re-run replaces the demo's own results (the finished sweep cases are kept)
     code, _, err = run_cli(["demo", "--stack", folder], capsys)
-    assert code == 2 and len(err.strip().splitlines()) == 1
+    assert code == 0, err
+    assert np.array_equal(np.loadtxt(folder / "touch_signal.csv", delimiter=",", skiprows=1,
+                                     ndmin=2), rows)
+
+
+def test_demo_refuses_a_folder_of_other_results_without_force(tmp_path, capsys):
+    from conftest import run_cli
+
+    (tmp_path / "result.json").write_text("{}\n")
+    (tmp_path / "untouched").mkdir()
+    (tmp_path / "untouched" / "result.json").write_text("{}\n")
+    for argv in (["demo", tmp_path], ["demo", "--stack", tmp_path]):
+        code, _, err = run_cli(argv, capsys)
+        assert code == 2 and len(err.strip().splitlines()) == 1, err
+        assert (tmp_path / "result.json").read_text() == "{}\n"

@@ -138,6 +138,14 @@ def test_gap_sweep_is_monotone_and_equals_direct_extract(plates, tmp_path, capsy
     assert np.all(np.diff(coupling) < 0) and np.all(np.diff(own) < 0)
     # parallel-plate closed form eps0 A / d, plus fringing: 1 < C / (eps0 A / d) < 1.5 at d = a/10
     assert 1.0 < coupling[0] / (EPS0 * 1e-6 / 0.1e-3) < 1.5
+    # at rest the 0.1 mm gap is smaller than the plates' panels (about 0.22 mm): that case,
+    # and only the ones this close, carries the under-resolution warning, in mm, on the
+    # console and in summary.csv
+    assert "under-resolved" in rows[0]["warnings"] and "0.1 mm" in rows[0]["warnings"]
+    assert [r["warnings"] for r in rows[2:]] == ["", ""]
+    err = capsys.readouterr().err
+    assert f"case {rows[0]['label']}: warning: " in err
+    assert f"case {rows[-1]['label']}: warning: " not in err
     for k, shift in enumerate([0.0, 0.2, 0.4, 0.6]):
         (tmp_path / f"direct{k}").mkdir()
         moved = write_mesh(tmp_path / f"direct{k}" / "top.vtu", plate(GAP0 + shift))

@@ -4,7 +4,7 @@ import sys
 from pathlib import Path
 
 from bem3d import api
-from bem3d._cli.options import add_model_options, model_from_args
+from bem3d._cli.options import add_model_options, model_from_args, print_units_hint
 from bem3d.geometry.refine import CREASE_DEGREES
 
 
@@ -41,6 +41,7 @@ def run(args):
                         crease_angle=args.crease_angle, solver=args.solver, tol=args.tol,
                         out=folder, progress=not args.quiet)
     if not args.quiet:
+        print_units_hint(args, conv.panels[0].vertices)
         for w in conv.warnings:
             print(f"warning: {w}", file=sys.stderr)
         print(conv.table())

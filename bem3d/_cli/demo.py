@@ -11,6 +11,7 @@ from bem3d.base.files import check_output_folder, write_text
 from bem3d.demo import keypad, sensor_head
 from bem3d.export.outputs import output_names
 from bem3d.export.records import CAUTION
+from bem3d.export.report import REPORT_NAME
 from bem3d.model import Model, load_model
 
 
@@ -25,24 +26,34 @@ def add_parser(subparsers):
                    help="the two-key touch keypad: board on a ground layer, copper keys, cover, "
                         "and a finger phantom swept towards one key")
     p.add_argument("--force", action="store_true",
-                   help="replace the results of an earlier demo in the folder")
+                   help="write into a folder holding another run's results (an earlier "
+                        "demo's own are replaced without it)")
     return p
+
+
+def earlier_demo(folder, marker):
+    """True if folder holds the file an earlier run of this demo wrote first (its mesh or model
+    file): the demo then replaces its own results, as a user re-running it expects; a folder
+    holding anything else's results still needs --force."""
+    return (Path(folder) / marker).is_file()
 
 
 def run(args):
     if args.stack:
-        return run_keypad(args.folder or Path("bem3d_stack_demo"), args.force)
+        folder = args.folder or Path("bem3d_stack_demo")
+        return run_keypad(folder, args.force or earlier_demo(folder, "keypad.toml"))
     folder = args.folder or Path("bem3d_demo")
     mesh = folder / "sensor_head.msh"
+    force = args.force or earlier_demo(folder, mesh.name)
     model = Model(meshes=[mesh], length_unit=sensor_head.LENGTH_UNIT,
                   volts=dict(sensor_head.VOLTS), output_folder=folder, spice_name="sensor_head")
-    check_output_folder(folder, [], output_names(model), args.force)
+    check_output_folder(folder, [], output_names(model) + [REPORT_NAME], force)
     sensor_head.write_demo_mesh(mesh)
     print(f"demo: capacitive sensor head (two sense pads, drive pad, guard ring, lid); "
           f"drive at {sensor_head.VOLTS['drive']:g} V, others at 0 V")
     # the board face z = 0 carries the pads: slice just above it, between grid planes
     result = api.field(model, slices=[("z", sensor_head.SLICE_Z_MM)], png=True, cache=False,
-                       out=folder, force=args.force, progress=True)
+                       out=folder, force=force, progress=True, report=True)
     print_field_summary(result)
     print(f"demo files are in {folder.resolve()}")
     return 0
@@ -58,7 +69,7 @@ def run_keypad(folder, force):
     (its first position is keypad.toml's), and the touch signal printed and written to
     touch_signal.csv."""
     check_output_folder(folder, [], KEYPAD_FILES, force)
-    check_output_folder(folder / "untouched", [], ["result.json"], force)
+    check_output_folder(folder / "untouched", [], ["result.json", REPORT_NAME], force)
     folder.mkdir(parents=True, exist_ok=True)
     model_file = keypad.write_files(folder)
     model = load_model(model_file)
@@ -71,7 +82,7 @@ def run_keypad(folder, force):
     untouched = api.extract(folder / "keys.msh", units=model.length_unit,
                             ground_plane=model.ground_plane_z, dielectrics=model.dielectrics,
                             frequency=model.frequency_Hz, volts=model.volts,
-                            out=folder / "untouched", force=force, cache=False)
+                            out=folder / "untouched", force=force, cache=False, report=True)
     print(f"\nthe keys without a finger ({folder / 'untouched'}):")
     print_warnings(untouched.warnings)
     print(untouched.table())

@@ -2,7 +2,8 @@
 
 0 the run finished; 2 bad input (the user can fix the request or the files); 3 the machine or
 its files failed (any OSError such as a full disk or an unwritable folder, out of memory,
-recursion too deep); 4 a sweep finished but some of its cases failed; 130 interrupted (Ctrl-C).
+recursion too deep); 4 a sweep finished but some of its cases failed; 130 interrupted (Ctrl-C);
+141 the reader of the output closed it early (`| head`), as for any program ended by SIGPIPE.
 Anything else escaping is a bug: Python's traceback and exit code 1.
 """
 
@@ -15,6 +16,7 @@ BAD_INPUT = 2
 ENVIRONMENT = 3
 CASES_FAILED = 4
 INTERRUPTED = 130
+CLOSED_PIPE = 141
 
 #: Extra words for the errno values a user meets most, where strerror alone is terse.
 _HINTS = {errno.ENOSPC: "the disk is full", errno.EDQUOT: "the disk quota is exhausted",

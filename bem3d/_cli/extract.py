@@ -10,6 +10,7 @@ from bem3d._cli.options import (
     add_run_guards,
     add_solver_options,
     model_from_args,
+    print_units_hint,
     solver_settings,
 )
 from bem3d.export.records import CAUTION
@@ -21,6 +22,10 @@ def add_parser(subparsers):
     add_model_options(p)
     add_run_guards(p)
     add_solver_options(p)
+    p.add_argument("--report", action="store_true",
+                   help="also write report.html: one self-contained page (model, matrices, "
+                        "couplings, warnings, solver record, cautions) that opens offline "
+                        "and prints")
     p.add_argument("--quiet", action="store_true", help="print nothing but errors")
     return p
 
@@ -61,9 +66,11 @@ def print_warnings(warnings):
 def run(args):
     model = model_from_args(args)
     result = api.extract(model, **solver_settings(args), max_panels=args.max_panels,
-                         out=model.output_folder, force=args.force, progress=not args.quiet)
+                         out=model.output_folder, force=args.force, progress=not args.quiet,
+                         report=args.report)
     if args.quiet:
         return 0
+    print_units_hint(args, result.panels.vertices)
     print_warnings(result.warnings)
     print(result.table())
     sensitivity = result.sensitivity

@@ -10,10 +10,12 @@ from bem3d._cli.options import (
     add_run_guards,
     add_solver_options,
     model_from_args,
+    print_units_hint,
     solver_settings,
 )
 from bem3d.base.constants import LENGTH_UNITS
 from bem3d.base.units import format_quantity
+from bem3d.export.report import energy_rows
 from bem3d.post.field_map import AIR_BREAKDOWN_V_PER_M, FIELD_CAUTION
 
 
@@ -40,6 +42,10 @@ def add_parser(subparsers):
                    help="also write each conductor's field at 1 V (others 0 V) for superposition")
     p.add_argument("--png", action="store_true",
                    help="render surface_charge.png and field_slice.png")
+    p.add_argument("--report", action="store_true",
+                   help="also write report.html: one self-contained page (model, matrices, "
+                        "couplings, warnings, solver record, cautions; energy, peak fields, forces and the pictures) that opens offline "
+                        "and prints")
     p.add_argument("--quiet", action="store_true", help="print nothing but errors")
     return p
 
@@ -50,8 +56,9 @@ def run(args):
                        points=args.points, slices=args.slice, at=args.at,
                        unit_fields=args.unit_fields, png=args.png, **solver_settings(args),
                        max_panels=args.max_panels, out=model.output_folder, force=args.force,
-                       progress=not args.quiet)
+                       progress=not args.quiet, report=args.report)
     if not args.quiet:
+        print_units_hint(args, result.panels.vertices)
         print_field_summary(result)
     return 0
 
@@ -61,16 +68,9 @@ def print_field_summary(result):
     model, record = result.model, result.record
     print_warnings(result.warnings + result.picture_problems)
     print(result.table())
-    w = record["energy_J"]
     print("\nstored energy at the given potentials")
-    rows = [("1/2 V^T C V", record["energy_J"]), ("1/2 sum Q V", record["energy_from_charges_J"]),
-            ("grid integral of 1/2 eps |E|^2", record["energy_grid_J"]),
-            ("outside the grid (surface identity)", record["energy_outside_grid_J"]),
-            ("outside the grid (monopole + dipole)", record["energy_outside_grid_multipole_J"]),
-            ("grid + outside", record["energy_grid_plus_outside_J"])]
-    for label, value in rows:
-        share = f"{value / w:8.2%}" if w else ""
-        print(f"  {label:<38}{format_quantity(value, 'J'):>14}{share}")
+    for label, value, share in energy_rows(record):
+        print(f"  {label:<38}{value:>14}{share:>8}")
     print("peak |E| on each conductor (panel centroids; edges are higher), "
           "and its share of air's breakdown field")
     scale, unit = LENGTH_UNITS[model.length_unit], model.length_unit

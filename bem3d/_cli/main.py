@@ -2,6 +2,7 @@
 line on stderr and an exit code (see exits)."""
 
 import argparse
+import os
 import sys
 
 from bem3d._cli import check_mesh, converge, demo, exits, extract, field, sweep
@@ -19,10 +20,13 @@ def flag(name):
 
 
 class _Parser(argparse.ArgumentParser):
-    """argparse with bem3d's one-line error and exit code 2 (the usage stays in --help)."""
+    """argparse with bem3d's one-line error and exit code 2 (the usage stays in --help); a
+    subcommand's error names the subcommand after the one prefix."""
 
     def error(self, message):
-        self.exit(exits.BAD_INPUT, f"bem3d: error: {self.prog}: {terminal_text(message)}\n")
+        command = self.prog.removeprefix("bem3d").strip()
+        where = f"{command}: " if command else ""
+        self.exit(exits.BAD_INPUT, f"bem3d: error: {where}{terminal_text(message)}\n")
 
 
 def _parser():
@@ -37,11 +41,23 @@ def _parser():
     return parser
 
 
+def _quiet_closed_pipe():
+    """The reader of stdout closed it (`bem3d ... | head -1`): what is left to print goes to
+    the null device, so that the interpreter's last flush at exit raises nothing either."""
+    devnull = os.open(os.devnull, os.O_WRONLY)
+    os.dup2(devnull, sys.stdout.fileno())
+    return exits.CLOSED_PIPE
+
+
 def main(argv=None):
     args = _parser().parse_args(argv)
     with safe_streams():
         try:
-            return args.run(args)
+            code = args.run(args)
+            sys.stdout.flush()           # a closed pipe shows here, not at the exit
+            return code
+        except BrokenPipeError:
+            return _quiet_closed_pipe()
         except KeyboardInterrupt:
             if args.debug:
                 raise

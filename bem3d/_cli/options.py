@@ -1,8 +1,16 @@
-"""Options shared by the commands: the model, the solver, the run guards."""
+"""Options shared by the commands: the model, the solver, the run guards, and the hint when
+the length unit was left out."""
 
+import sys
 from pathlib import Path
 
+import numpy as np
+
 from bem3d.model import build_model, parse_dielectrics, parse_volts
+
+#: A model read in metres whose largest size lies in this range (m) was most likely drawn in
+#: millimetres: boards, sensors and enclosures measure 1 mm to 1 m (common practice, no source).
+MILLIMETRE_HINT_RANGE_M = (1.0, 1000.0)
 
 
 def add_model_options(p):
@@ -72,3 +80,18 @@ def model_from_args(args):
                        dielectrics=parse_dielectrics(args.dielectric),
                        loss_tangent=args.loss_tangent, frequency=args.frequency,
                        reference=args.reference, out=args.out)
+
+
+def print_units_hint(args, points):
+    """One line on stderr when --units was not given (nor a model file, which names its unit)
+    and the model, read in metres, is as large as a model drawn in millimetres would be.
+
+    points: corners of the model's panels in metres (any shape ending in 3)."""
+    if args.units or any(str(p).lower().endswith(".toml") for p in args.inputs):
+        return
+    points = np.reshape(points, (-1, 3))
+    size = float(np.ptp(points, axis=0).max()) if len(points) else 0.0
+    low, high = MILLIMETRE_HINT_RANGE_M
+    if low <= size < high:
+        print(f"hint: read in metres (no --units), the model is {size:.4g} m across; if it was "
+              "drawn in millimetres, run again with --units mm", file=sys.stderr)

@@ -101,12 +101,15 @@ class _Progress:
             return
         text = (f"case {record['label']}: failed: {record['error']}" if record["status"] != "ok"
                 else f"case {record['label']}: ok ({how}, {record['solve_seconds']:.2f} s)")
+        texts = [text] + [f"case {record['label']}: warning: {w}"
+                          for w in record.get("warnings") or []]
         if self.bar is not None:
             self.bar.update(1)
-            if record["status"] != "ok":
-                self.bar.write(text, file=sys.stderr)
+            for line in texts[record["status"] == "ok":]:
+                self.bar.write(line, file=sys.stderr)
         else:
-            print(text, file=sys.stderr)
+            for line in texts:
+                print(line, file=sys.stderr)
 
     def done(self, fields):
         if self.bar is not None:

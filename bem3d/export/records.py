@@ -4,6 +4,7 @@ import json
 
 import numpy as np
 
+from bem3d.base.constants import LENGTH_UNITS
 from bem3d.base.files import write_text
 from bem3d.base.version import __version__
 from bem3d.export.names import csv_cell, csv_text, spice_node, spice_nodes
@@ -96,9 +97,10 @@ def write_spice(result, target, subckt="bem3d_capacitance"):
     write_text(target, "\n".join(lines) + "\n")
 
 
-def write_point_table(points, columns, target):
-    """CSV: x_m, y_m, z_m, then one column per (name, values) pair; vectors get _x/_y/_z."""
-    names, data = ["x_m", "y_m", "z_m"], [points]
+def write_point_table(points, columns, target, unit="m"):
+    """CSV: x, y, z in the length unit `unit` (columns x_mm, y_mm, z_mm; points given in
+    metres), then one column per (name, values) pair; vectors get _x/_y/_z."""
+    names, data = [f"{c}_{unit}" for c in "xyz"], [np.asarray(points) / LENGTH_UNITS[unit]]
     for name, values in columns.items():
         values = np.asarray(values)
         if values.ndim == 2:

@@ -6,16 +6,17 @@ import numpy as np
 from scipy.spatial import cKDTree
 
 from bem3d.geometry.distances import triangle_distance
-from bem3d.geometry.messages import point_text
+from bem3d.geometry.messages import length_text, point_text
 from bem3d.geometry.panels import edge_lengths
 
 #: Panels of two conductors closer than max(MERGE_REL * model size, TOUCH_REL * panel radius) touch.
 TOUCH_REL = 1e-6
 
 
-def conductor_contacts(panels, keep, tol, src):
+def conductor_contacts(panels, keep, tol, src, unit="m"):
     """(errors, warnings) for each pair of conductors that touch, or come closer than their
-    panel size (longest edge) there, which under-resolves the charge between them.
+    panel size (longest edge) there, which under-resolves the charge between them. Lengths in
+    the messages are in `unit`.
 
     Two panels can be that close only if their centroids are within r_i + r_j + max(h_i, h_j),
     at most 4 max(r_i, r_j) since an edge h is at most twice the radius r; so the larger panel's
@@ -62,14 +63,15 @@ def conductor_contacts(panels, keep, tol, src):
             if out is errors:
                 first = sel[0]
                 out.append(f"{where}: {pair} touch or overlap ({len(sel)} panel pair(s) closer "
-                           f"than {max(tol, TOUCH_REL * small[first]):.3g} m, the first near "
-                           f"{point_text(c[i[first]])})")
+                           f"than {length_text(max(tol, TOUCH_REL * small[first]), unit)}, the "
+                           f"first near {point_text(c[i[first]], unit)})")
             else:
                 k = sel[np.argmax(size[sel] / gap[sel])]
-                out.append(f"{where}: {pair} come within {gap[k]:.3g} m of each other near "
-                           f"{point_text(c[i[k]])}, less than their panel size there "
-                           f"({size[k]:.3g} m; {len(sel)} panel pair(s) closer than their "
-                           "size), so the result is under-resolved; refine both surfaces there "
-                           f"to panels of at most {gap[k]:.3g} m (about "
+                out.append(f"{where}: {pair} come within {length_text(gap[k], unit)} of each "
+                           f"other near {point_text(c[i[k]], unit)}, less than their panel "
+                           f"size there ({length_text(size[k], unit)}; {len(sel)} panel "
+                           "pair(s) closer than their size), so the result is under-resolved; "
+                           "refine both surfaces there to panels of at most "
+                           f"{length_text(gap[k], unit)} (about "
                            f"{math.ceil(size[k] / gap[k])}x finer)")
     return errors, near

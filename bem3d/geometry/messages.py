@@ -4,10 +4,18 @@ import os
 
 import numpy as np
 
+from bem3d.base.constants import LENGTH_UNITS
 
-def point_text(x):
-    """A point (3,) in metres as text."""
-    return "(" + ", ".join(f"{c:.6g}" for c in x) + ") m"
+
+def point_text(x, unit="m"):
+    """A point (3,) given in metres, as text in the length unit `unit`."""
+    scale = LENGTH_UNITS[unit]
+    return "(" + ", ".join(f"{c / scale:.6g}" for c in x) + f") {unit}"
+
+
+def length_text(value, unit="m"):
+    """A length given in metres, as text in the length unit `unit`."""
+    return f"{value / LENGTH_UNITS[unit]:.3g} {unit}"
 
 
 def nonfinite_message(source, bad):

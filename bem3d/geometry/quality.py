@@ -5,7 +5,12 @@ import numpy as np
 
 from bem3d.base.errors import MeshError
 from bem3d.geometry.contacts import conductor_contacts
-from bem3d.geometry.messages import conductor_sources, nonfinite_message, point_text
+from bem3d.geometry.messages import (
+    conductor_sources,
+    length_text,
+    nonfinite_message,
+    point_text,
+)
 from bem3d.geometry.panels import edge_lengths
 from bem3d.geometry.topology import MERGE_REL, boundary_edges, corner_ids, model_size, neighbours
 
@@ -25,30 +30,32 @@ ASPECT_WARN = 20.0
 SIZE_JUMP_WARN = 3.0
 
 
-def check_geometry(panels, source):
+def check_geometry(panels, source, unit="m"):
     """Warnings (list of one-line strings) about ``panels``; raises MeshError if they are unusable.
 
     Unusable: no panels, NaN/infinite coordinates, zero-area panels, panels too small for their
     coordinates' precision, duplicate panels, or two conductors that touch or overlap. Warnings:
     conductors closer to each other than their panel size, thin panels, abrupt size changes.
-    source: the file name, or one file name per conductor, that messages start with. The error
-    names the first problem and how many more were found.
+    source: the file name, or one file name per conductor, that messages start with; unit: the
+    length unit of the messages (the mesh's). The error names the first problem and how many
+    more were found.
     """
-    errors, found_warnings = _problems(panels, source)
+    errors, found_warnings = _problems(panels, source, unit)
     if errors:
         more = f" (and {len(errors) - 1} more problems)" if len(errors) > 1 else ""
         raise MeshError(errors[0] + more)
     return found_warnings
 
 
-def mesh_summary(panels, source="mesh"):
+def mesh_summary(panels, source="mesh", unit="m"):
     """Facts about ``panels`` for a mesh report, as a dict of plain Python values (SI units).
 
     Keys: panels, conductors (name, panels, area_m2, boundary_edges: 0 for a closed surface),
     bounding_box_m ([min xyz, max xyz]), smallest_panel / largest_panel (area_m2 and the
     shortest / longest edge_m), aspect_ratio_max (longest edge / height onto it; 1.15 for an
     equilateral triangle), neighbour_size_ratio_max (largest ratio of the longest edges of two
-    panels sharing an edge), problems (error and warning messages of ``check_geometry``).
+    panels sharing an edge), problems (error and warning messages of ``check_geometry``, their
+    lengths in `unit`).
     """
     v = panels.vertices
     finite = np.isfinite(v).all(axis=(1, 2))
@@ -58,7 +65,7 @@ def mesh_summary(panels, source="mesh"):
     conductors = [{"name": name, "panels": int(np.sum(panels.owner == k)),
                    "area_m2": float(np.sum(areas[panels.owner[finite] == k])),
                    "boundary_edges": int(boundary[k])} for k, name in enumerate(panels.names)]
-    errors, found_warnings = _problems(panels, source)
+    errors, found_warnings = _problems(panels, source, unit)
     have = bool(finite.any())
     corners = v[finite].reshape(-1, 3)
     usable = finite & ~_degenerate(panels, finite)
@@ -98,7 +105,7 @@ def _size_ratios(size, i, j):
     return np.maximum(size[i], size[j]) / np.minimum(size[i], size[j])
 
 
-def _problems(panels, source):
+def _problems(panels, source, unit):
     """(errors, warnings) about panels: one-line messages starting with the file concerned."""
     src = conductor_sources(panels, source)
     label = ", ".join(dict.fromkeys(src)) or "mesh"
@@ -113,20 +120,20 @@ def _problems(panels, source):
     if degenerate.any():
         i = int(np.flatnonzero(degenerate)[0])
         errors.append(f"{src[owner[i]]}: {int(degenerate.sum())} zero-area panel(s), the first "
-                      f"(panel {i}) at {point_text(panels.centroids[i])}")
+                      f"(panel {i}) at {point_text(panels.centroids[i], unit)}")
     # The remaining checks need finite, non-degenerate panels; the others are reported above.
     keep = np.flatnonzero(finite & ~degenerate)
     if len(keep) == 0:
         return errors, []
-    errors += _imprecise(panels, keep, src)
+    errors += _imprecise(panels, keep, src, unit)
     tol = MERGE_REL * model_size(v[keep].reshape(-1, 3))
     corner_id = corner_ids(v[keep], tol)
-    errors += _duplicates(panels, keep, corner_id, src)
-    touching, near = conductor_contacts(panels, keep, tol, src)
-    return errors + touching, near + _shape_warnings(panels, keep, corner_id, src)
+    errors += _duplicates(panels, keep, corner_id, src, unit)
+    touching, near = conductor_contacts(panels, keep, tol, src, unit)
+    return errors + touching, near + _shape_warnings(panels, keep, corner_id, src, unit)
 
 
-def _imprecise(panels, keep, src):
+def _imprecise(panels, keep, src, unit):
     """Error about panels (indices keep) too small for the precision of their coordinates."""
     v = panels.vertices[keep]
     shortest = edge_lengths(v).min(axis=1)
@@ -137,12 +144,13 @@ def _imprecise(panels, keep, src):
     k = int(np.argmin(np.where(bad, shortest / magnitude, np.inf)))
     i = keep[k]
     return [f"{src[panels.owner[i]]}: {int(bad.sum())} panel(s) too small for the precision of "
-            f"their coordinates (edges of {shortest[k]:.3g} m at coordinates of "
-            f"{magnitude[k]:.3g} m), the worst (panel {i}) at {point_text(panels.centroids[i])}; "
+            f"their coordinates (edges of {length_text(shortest[k], unit)} at coordinates of "
+            f"{length_text(magnitude[k], unit)}), the worst (panel {i}) at "
+            f"{point_text(panels.centroids[i], unit)}; "
             "move the model near the origin"]
 
 
-def _duplicates(panels, keep, corner_id, src):
+def _duplicates(panels, keep, corner_id, src, unit):
     """Error about panels (indices keep, merged corner ids) with the same three corners as
     another of their conductor. A panel repeated on another conductor is reported as the two
     conductors touching."""
@@ -154,10 +162,10 @@ def _duplicates(panels, keep, corner_id, src):
     i = keep[np.flatnonzero(repeated)[0]]
     return [f"{src[panels.owner[i]]}: {int(np.sum(counts - 1))} duplicate panel(s) (same three "
             "corners as another panel), the first "
-            f"(panel {i}) at {point_text(panels.centroids[i])}"]
+            f"(panel {i}) at {point_text(panels.centroids[i], unit)}"]
 
 
-def _shape_warnings(panels, keep, corner_id, src):
+def _shape_warnings(panels, keep, corner_id, src, unit):
     """Warnings, per conductor, about thin panels and neighbours of very different size."""
     v, owner = panels.vertices[keep], panels.owner[keep]
     centroids = panels.centroids[keep]
@@ -171,8 +179,8 @@ def _shape_warnings(panels, keep, corner_id, src):
             worst = np.argmax(np.where(thin, aspect, 0))
             found.append(f"{src[k]}: conductor {name!r}: {int(thin.sum())} panel(s) with aspect "
                          f"ratio (longest edge / height) above {ASPECT_WARN:g}, up to "
-                         f"{aspect[worst]:.3g} at {point_text(centroids[worst])}; thin panels "
-                         "resolve the charge poorly across their width, remesh them nearer "
+                         f"{aspect[worst]:.3g} at {point_text(centroids[worst], unit)}; thin "
+                         "panels resolve the charge poorly across their width, remesh them nearer "
                          "to equilateral")
         steep = (owner[i] == k) & (jump > SIZE_JUMP_WARN)
         if steep.any():
@@ -180,6 +188,6 @@ def _shape_warnings(panels, keep, corner_id, src):
             where = 0.5 * (centroids[i[worst]] + centroids[j[worst]])
             found.append(f"{src[k]}: conductor {name!r}: {int(steep.sum())} pair(s) of "
                          f"neighbouring panels differ in size by more than {SIZE_JUMP_WARN:g}x, "
-                         f"up to {jump[worst]:.3g}x near {point_text(where)}; grade the mesh more "
-                         "gently there")
+                         f"up to {jump[worst]:.3g}x near {point_text(where, unit)}; grade the "
+                         "mesh more gently there")
     return found

@@ -99,7 +99,7 @@ def read_conductors(paths, units="m", names=None, check=True, max_panels=None):
     panels = canonical_order(panels)
     out_warnings += orient_warnings
     if check:
-        out_warnings += check_geometry(panels, sources)
+        out_warnings += check_geometry(panels, sources, units)
     return panels, out_warnings
 
 

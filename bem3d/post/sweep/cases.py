@@ -109,9 +109,11 @@ def case_keys(model, case, solver, tol, memo):
 
 
 def read_base(model, moves, entries):
-    """The base model's panels (m), warnings and dielectric bodies, with the names of the
-    moves, entries and potentials checked before anything runs."""
-    panels, warnings = read_conductors(model.meshes, units=model.length_unit)
+    """The base model's panels (m), reader warnings and dielectric bodies, with the geometry
+    and the names of the moves, entries and potentials checked before anything runs. The
+    geometry's warnings belong to each case's moved panels (case_panels), not to the base."""
+    panels, warnings = read_conductors(model.meshes, units=model.length_unit, check=False)
+    check_geometry(panels, mesh_sources(model, panels), model.length_unit)
     for move in moves:
         conductor_indices(panels, move.names)
     for _, a, b in entries:
@@ -135,6 +137,6 @@ def case_panels(case, model, base, unit):
         panels = move_conductors(
             panels, move.names, move.kind, value * (unit if move.kind == "translate" else 1.0),
             move.axis, None if move.pivot is None else np.multiply(move.pivot, unit))
-    if case.steps:
-        warnings = list(warnings) + check_geometry(panels, mesh_sources(model, panels))
+    warnings = list(warnings) + check_geometry(panels, mesh_sources(model, panels),
+                                               model.length_unit)
     return panels, warnings, bodies

@@ -6,12 +6,15 @@ from bem3d.base.errors import Bem3dError
 from bem3d.base.files import write_text
 
 
-def case_record(case, keys, result=None, error=None):
+def case_record(case, keys, result=None, error=None, warnings=()):
     """What case.json holds for a finished (result) or failed (error text) case; keys: the
-    (solve key, case key) pair, or None if the case failed before they were known."""
+    (solve key, case key) pair, or None if the case failed before they were known; warnings:
+    the accuracy warnings of the case's geometry (e.g. conductors moved closer than their
+    panel size)."""
     record = {"case": case.index, "label": case.label, "key": keys[1] if keys else None,
               "solve_key": keys[0] if keys else None, "parameters": case.parameters,
-              "status": "ok" if error is None else "failed", "error": error}
+              "status": "ok" if error is None else "failed", "error": error,
+              "warnings": list(warnings)}
     if result is not None:
         record.update(conductors=list(result.names),
                       maxwell_capacitance_F=result.maxwell.tolist(),

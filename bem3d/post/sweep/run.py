@@ -24,7 +24,8 @@ from bem3d.post.sweep.records import (
 from bem3d.post.sweep.summary import default_entries, plotted_entries, summary_rows
 
 #: The fields of a case's record that its "case" event carries.
-CASE_EVENT_FIELDS = ("case", "label", "status", "parameters", "error", "solve_seconds")
+CASE_EVENT_FIELDS = ("case", "label", "status", "parameters", "error", "solve_seconds",
+                     "warnings")
 
 
 @dataclass(frozen=True)
@@ -158,7 +159,7 @@ def run_sweep(request: SweepRequest, on_event=None) -> SweepOutcome:
         with staged_outputs(case_folder, model.files(), force=True) as stage:
             written = write_outputs(stage, panels, result, model, warnings)
         clear_stale(case_folder, {f.name for f in written})
-        records[case.index] = case_record(case, keys, result)
+        records[case.index] = case_record(case, keys, result, warnings=warnings)
         write_record(case_folder, records[case.index])
         counts[how] += 1
         emit_case(records[case.index], how)

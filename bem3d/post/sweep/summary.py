@@ -32,7 +32,8 @@ def entry_value(record, entry):
 
 
 def summary_rows(cases, records, entries):
-    """One dict per case: case, label, status, parameters, panels, entries (F), energy, error.
+    """One dict per case: case, label, status, parameters, panels, entries (F), energy, error,
+    warnings (joined by '; ').
 
     records: {case index: case.json record} of the cases that finished or failed."""
     rows = []
@@ -48,5 +49,6 @@ def summary_rows(cases, records, entries):
         row["energy_J"] = f"{r['energy_J']:.9e}" if ok else ""
         row["solve_s"] = f"{r['solve_seconds']:.3f}" if ok else ""
         row["error"] = r.get("error") or ""
+        row["warnings"] = "; ".join(r.get("warnings") or [])
         rows.append(row)
     return rows
