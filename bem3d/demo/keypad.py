@@ -50,8 +50,8 @@ def _nodes(stops, densities):
     return np.array(nodes)
 
 
-def _lattice():
-    key, rest = KEY_CELLS_PER_MM, CELLS_PER_MM
+def _lattice(fineness=1.0):
+    key, rest = fineness * KEY_CELLS_PER_MM, fineness * CELLS_PER_MM
     key_edges = [c + s * KEY / 2 for c in (-PITCH / 2, PITCH / 2) for s in (-1, 1)]
     return (_nodes([-LENGTH / 2, *key_edges, LENGTH / 2], [rest, key, rest, key, rest]),
             _nodes([-WIDTH / 2, -KEY / 2, KEY / 2, WIDTH / 2], [rest, key, rest]))
@@ -62,22 +62,23 @@ def key_centres():
     return [(-PITCH / 2, 0.0), (PITCH / 2, 0.0)]
 
 
-def board():
-    """The board as (points, triangles): a closed box from z = 0 to BOARD_THICKNESS."""
-    xs, ys = _lattice()
+def board(fineness=1.0):
+    """The board as (points, triangles): a closed box from z = 0 to BOARD_THICKNESS.
+    fineness multiplies the lattice density (the demo's mesh at 1)."""
+    xs, ys = _lattice(fineness)
     return shapes.lattice_box(xs, ys, [0.0, BOARD_THICKNESS])
 
 
-def cover():
+def cover(fineness=1.0):
     """The cover as (points, triangles), lying on the board."""
-    xs, ys = _lattice()
+    xs, ys = _lattice(fineness)
     return shapes.lattice_box(xs, ys, [BOARD_THICKNESS, BOARD_THICKNESS + COVER_THICKNESS])
 
 
-def keys():
+def keys(fineness=1.0):
     """[(name, points, triangles)] of the keys: the board's top-face triangles inside each
     key, normals up."""
-    points, tris = board()
+    points, tris = board(fineness)
     corners = points[tris]
     centroids = corners.mean(axis=1)
     on_top = np.abs(centroids[:, 2] - BOARD_THICKNESS) < 1e-9
@@ -90,11 +91,12 @@ def keys():
     return parts
 
 
-def finger(gap=FINGER_GAPS[0]):
+def finger(gap=FINGER_GAPS[0], fineness=1.0):
     """The finger phantom (points, triangles) over key_1, gap mm above the cover."""
     x, y = key_centres()[0]
     z = BOARD_THICKNESS + COVER_THICKNESS + gap + FINGER_RADIUS
-    return shapes.octahedral_sphere(FINGER_RADIUS, FINGER_DIVISIONS, center=(x, y, z))
+    divisions = max(2, int(round(fineness * FINGER_DIVISIONS)))
+    return shapes.octahedral_sphere(FINGER_RADIUS, divisions, center=(x, y, z))
 
 
 MODEL_FILE = f"""# Two-key touch keypad on a stack-up (bem3d demo; lengths in mm)
