@@ -5,8 +5,8 @@ are the single-layer rows P, interface rows w_k (sigma_k - lambda_k/(2 pi) (K si
 w_k = scale * area_k. P is the symmetric H-matrix over all panels, its cluster tree split at
 the root into conductors and interfaces, so that its conductor block and its subdomains are
 those of the conductors alone; the blocks among interfaces, never used, are left out. K
-(interface rows x all panels) is a general H-matrix (operators.hfield). Restarted GMRES (Saad
-& Schultz 1986, SIAM J. Sci. Stat. Comput. 7, 856-869) with a block-diagonal preconditioner:
+(interface rows x all panels) is a general H-matrix (operators.hfield). Restarted GMRES for all
+conductors' right-hand sides at once (solve.gmres) with a block-diagonal preconditioner:
 two-level Schwarz on the conductor rows, 1/w_k on the interface rows (the diagonal of that
 block: a flat panel's own normal field vanishes)."""
 
@@ -15,7 +15,6 @@ import time
 
 import numba
 import numpy as np
-from scipy.sparse.linalg import LinearOperator, gmres
 from threadpoolctl import threadpool_limits
 
 from bem3d.geometry.panels import Panels
@@ -25,6 +24,7 @@ from bem3d.operators.hmatrix import Compression, HMatrixOperator, HMatrixPlan
 from bem3d.operators.kernel_data import normal_field
 from bem3d.operators.rules import PairRules
 from bem3d.solve.dielectric import TEST_POINTS, system_result, system_rhs, union_panels
+from bem3d.solve.gmres import gmres_columns
 from bem3d.solve.schwarz import SchwarzPreconditioner
 
 #: Krylov vectors kept between GMRES restarts.
@@ -68,7 +68,10 @@ class DielectricPlan:
     def work_bytes(self, n_rhs):
         """Bytes beside the operators: kernel arguments, preconditioner and solver vectors."""
         n = self.system.n_panels
-        gmres_vectors = 8 * n * (RESTART + 10 + numba.get_num_threads())
+        item = 16 if self.system.lossy else 8
+        # the Krylov bases of every right-hand side (their real and imaginary parts go
+        # through the operators side by side) and a few working blocks
+        gmres_vectors = item * n * n_rhs * (RESTART + 10) + 8 * n * numba.get_num_threads()
         field = 0 if self.field is None else self.field.argument_bytes()
         return self.single.work_bytes(n_rhs, self.subdomain_size) + field + gmres_vectors
 
@@ -82,10 +85,13 @@ def _conductor_schwarz(operator, areas, nc, max_size):
 
 
 def _real_apply(apply, x):
-    """apply (a real linear map) to x, part by part when x is complex (lossy media)."""
+    """apply (a real linear map of (n, j) arrays) to x; a complex x (lossy media) goes as its
+    real and imaginary parts side by side, in one product."""
     if np.iscomplexobj(x):
-        return apply(np.ascontiguousarray(x.real)) + 1j * apply(np.ascontiguousarray(x.imag))
-    return apply(x)
+        k = x.shape[1]
+        both = apply(np.ascontiguousarray(np.hstack([x.real, x.imag])))
+        return both[:, :k] + 1j * both[:, k:]
+    return apply(np.ascontiguousarray(x))
 
 
 def solve_planned(plan, volts=None, tol=1e-7, max_iterations=1000, memory_limit=None):
@@ -102,45 +108,32 @@ def solve_planned(plan, volts=None, tol=1e-7, max_iterations=1000, memory_limit=
     t0 = time.perf_counter()
     schwarz = _conductor_schwarz(single, plan.single.panels.areas, nc, plan.subdomain_size)
     scale = np.mean(single.diagonal()[:nc] / system.conductors.areas)
-    weight = scale * system.interfaces.areas
-    n = system.n_panels
-
-    dtype = complex if system.lossy else float
+    weight = (scale * system.interfaces.areas)[:, None]
+    coupling = (lam / (2 * math.pi))[:, None]
 
     def rows(x):
-        y = np.empty(n, dtype)
-        y[:nc] = _real_apply(single.matvec, x)[:nc]
+        y = np.empty_like(x)
+        y[:nc] = _real_apply(single.matmat, x)[:nc]
         if field is not None:
-            y[nc:] = weight * (x[nc:] - lam / (2 * math.pi) * _real_apply(field.matvec, x))
+            y[nc:] = weight * (x[nc:] - coupling * _real_apply(field.matmat, x))
         return y
 
     def precondition(r):
-        conductors = _real_apply(lambda v: schwarz(v[:nc, None])[:, 0], r)
-        return np.concatenate([conductors, r[nc:] / weight])
+        return np.concatenate([_real_apply(lambda v: schwarz(v[:nc]), r), r[nc:] / weight])
 
-    matrix = LinearOperator((n, n), matvec=rows, dtype=dtype)
-    inverse = LinearOperator((n, n), matvec=precondition, dtype=dtype)
     rhs = system_rhs(system)
-    total = np.zeros(rhs.shape, dtype)
-    steps = []
     with threadpool_limits(limits=1, user_api="blas"):
-        for j in range(rhs.shape[1]):
-            count = [0]
-
-            def step(_, count=count):
-                count[0] += 1
-
-            total[:, j], _ = gmres(matrix, rhs[:, j], rtol=tol, atol=0.0, restart=RESTART,
-                                   maxiter=max(1, max_iterations // RESTART), M=inverse,
-                                   callback=step, callback_type="pr_norm")
-            steps.append(count[0])
-    residual = max(float(np.linalg.norm(rows(total[:, j]) - rhs[:, j])
-                         / np.linalg.norm(rhs[:, j])) for j in range(rhs.shape[1]))
+        total, report = gmres_columns(rows, precondition,
+                                      rhs.astype(complex) if system.lossy else rhs, tol,
+                                      RESTART, max_iterations)
+    residual = float(np.max(np.linalg.norm(rows(total) - rhs, axis=0)
+                            / np.linalg.norm(rhs, axis=0)))
+    n = system.n_panels
     solve = time.perf_counter() - t0
     field_bytes = 0 if field is None else field.nbytes
     result = system_result(system, plan.both, total, volts, {
         "backend": "compressed", "solver": "gmres-schwarz (dielectric interfaces)",
-        "iterations": max(steps), "relative_residual": residual, "tolerance": tol,
+        "iterations": report.iterations, "relative_residual": residual, "tolerance": tol,
         "converged": residual <= tol, "pair_rules": plan.rules.as_dict(),
         "compression": plan.compression.as_dict(), "subdomain_size": plan.subdomain_size,
         "single_layer_MiB": single.nbytes / 2**20, "normal_field_MiB": field_bytes / 2**20,
