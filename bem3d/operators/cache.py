@@ -17,6 +17,7 @@ from pathlib import Path
 
 import numpy as np
 
+from bem3d.base.cache_folders import user_cache_folder
 from bem3d.base.files import TEMP_PREFIX, sweep_leftovers
 
 #: Bumped whenever the stored arrays change meaning, so that old entries are rebuilt.
@@ -27,8 +28,7 @@ def default_folder():
     """The cache folder: $BEM3D_CACHE_DIR, else $XDG_CACHE_HOME/bem3d, else ~/.cache/bem3d."""
     if os.environ.get("BEM3D_CACHE_DIR"):
         return Path(os.environ["BEM3D_CACHE_DIR"])
-    base = os.environ.get("XDG_CACHE_HOME") or Path.home() / ".cache"
-    return Path(base) / "bem3d"
+    return user_cache_folder()
 
 
 def cache_key(panels, settings):
