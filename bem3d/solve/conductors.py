@@ -40,8 +40,8 @@ def _largest(values):
 
 def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto", tol=1e-7,
                  progress=False, ground_z=None, floating=(), dielectrics=(), *, backend="auto",
-                 compression=None, cache=False, cache_dir=None, loss_tangent=0.0,
-                 frequency=None):
+                 compression=None, cache=False, cache_dir=None, cache_max_bytes=None,
+                 loss_tangent=0.0, frequency=None):
     """Capacitance of the conductors in `panels` (metres) in a medium of relative permittivity eps_r.
 
     volts: {conductor name: V}; conductors not named are at 0 V. solver: 'direct' (Cholesky),
@@ -53,7 +53,8 @@ def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto"
     backend; its tolerance bounds each far block's relative error, which moves the
     capacitances by less than that (tools/bench_scale.py measures it against dense).
     cache: keep the compressed operator, its preconditioner and solution in cache_dir (default
-    cache.default_folder()) and reuse them when the same panels and settings come again.
+    cache.default_folder()) and reuse them when the same panels and settings come again;
+    cache_max_bytes: its size cap (default cache.size_cap()).
     ground_z: height (m) of an infinite grounded plane (method of images), or None.
     floating: names of conductors with zero net charge and unknown potential.
     dielectrics: dielectric.DielectricBody list; eps_r is then the background around them.
@@ -90,7 +91,8 @@ def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto"
             compression = compression or Compression()
             report, settings, timings = _solve_compressed(panels, rhs, eps_r, rules, tol,
                                                           compression, ground_z, have,
-                                                          progress, cache, cache_dir)
+                                                          progress, cache, cache_dir,
+                                                          cache_max_bytes)
     timings["compile"] = compile_seconds_since(mark)
     maxwell = rhs.T @ report.charges
     settings.update({"backend": backend, "solver": report.method,
@@ -157,10 +159,10 @@ def _solve_dense(panels, rhs, eps_r, rules, solver, tol, ground_z, have, progres
 
 
 def _solve_compressed(panels, rhs, eps_r, rules, tol, compression, ground_z, have, progress,
-                      cache, cache_dir):
+                      cache, cache_dir, cache_max_bytes):
     timings = {}
     settings = {"compression": compression.as_dict(), "subdomain_size": SUBDOMAIN_SIZE}
-    store = OperatorCache(cache_dir) if cache else None
+    store = OperatorCache(cache_dir, cache_max_bytes) if cache else None
     key = cache_key(panels, {"rules": rules.as_dict(), "compression": compression.as_dict(),
                              "ground_z": ground_z, "subdomain_size": SUBDOMAIN_SIZE})
     names = HMatrixOperator.ARRAY_NAMES + SchwarzPreconditioner.ARRAY_NAMES + ("solution",)
