@@ -7,11 +7,15 @@
 Lengths are in the model's unit going in and coming out; quantities are SI.
 """
 
-from bem3d.api import Geometry, converge, extract, field, read, sweep
-from bem3d.base.errors import Bem3dError, MeshError, ModelError, ResourceError
-from bem3d.base.version import __version__
-from bem3d.model import Model
-from bem3d.result import FieldResult, Result
+from bem3d.base.cache_folders import choose_numba_cache
+
+choose_numba_cache()         # before any kernel is defined: Numba reads the setting then
+
+from bem3d.api import Geometry, converge, extract, field, read, sweep  # noqa: E402
+from bem3d.base.errors import Bem3dError, MeshError, ModelError, ResourceError  # noqa: E402
+from bem3d.base.version import __version__  # noqa: E402
+from bem3d.model import Model  # noqa: E402
+from bem3d.result import FieldResult, Result  # noqa: E402
 
 __all__ = ["extract", "field", "sweep", "converge", "read", "Result", "FieldResult", "Geometry", "Model",
            "Bem3dError", "MeshError", "ModelError", "ResourceError", "__version__"]

@@ -19,6 +19,7 @@ from bem3d.geometry.refine import CREASE_DEGREES
 from bem3d.mesh_io.bodies import read_bodies
 from bem3d.mesh_io.read import read_conductors
 from bem3d.model import Model, build_model
+from bem3d.operators.cache import size_cap
 from bem3d.operators.hmatrix import Compression
 from bem3d.post.convergence import converge_model
 from bem3d.post.field_map import compute_field_map, field_request
@@ -59,14 +60,14 @@ def read(inputs, *, units="m", check=True):
 
 
 def solve_settings(backend="auto", solver="auto", tol=1e-7, block_tol=1e-5, cache=True,
-                   cache_dir=None):
+                   cache_dir=None, cache_max=None):
     """Checked solver settings as keyword arguments of solve.conductors.solve_panels."""
     for name, value in (("tol", tol), ("block_tol", block_tol)):
         if not 0 < value < 1:
             raise ModelError(f"{option(name)} must lie between 0 and 1, got {value:g}")
     return {"backend": backend, "solver": solver, "tol": tol,
             "compression": Compression(tolerance=block_tol), "cache": cache,
-            "cache_dir": cache_dir}
+            "cache_dir": cache_dir, "cache_max_bytes": size_cap(cache_max) if cache else None}
 
 
 def model_of(inputs, **settings):
@@ -119,9 +120,9 @@ def _solve(model, settings, panels, progress, start):
 
 
 def extract(inputs, *, units=None, volts=None, eps_r=None, ground_plane=None, floating=(),
-            dielectrics=(), loss_tangent=None, frequency=None, reference=None, backend="auto", solver="auto", tol=1e-7, block_tol=1e-5,
-            cache=True, cache_dir=None, max_panels=None, out=None, force=False,
-            progress=False, report=False):
+            dielectrics=(), loss_tangent=None, frequency=None, reference=None, backend="auto",
+            solver="auto", tol=1e-7, block_tol=1e-5, cache=True, cache_dir=None, cache_max=None,
+            max_panels=None, out=None, force=False, progress=False, report=False):
     """Solve for the capacitance matrices of the conductors in `inputs`: a Result.
 
     inputs: mesh paths (one conductor per file, or groups within one file), one .toml model
@@ -134,7 +135,8 @@ def extract(inputs, *, units=None, volts=None, eps_r=None, ground_plane=None, fl
     conductor taken as the ground node: the others' matrices relative to it, with the far
     field (and a ground plane) lumped into it (results.reduce_reference). backend: 'auto', 'dense' or 'compressed'; solver: 'auto', 'direct' or 'cg'; tol:
     the CG relative residual; block_tol: the compressed backend's block accuracy; cache,
-    cache_dir: the operator cache. max_panels: refuse a larger model before any assembly.
+    cache_dir: the operator cache; cache_max: its size cap in GB (default
+    $BEM3D_CACHE_MAX_GB, else 4). max_panels: refuse a larger model before any assembly.
     out: also write the result files into this folder (refused before solving if it holds an
     earlier run's files, unless force). progress: report progress on stderr. report: with
     out, also write report.html (one self-contained page for a design review)."""
@@ -142,7 +144,7 @@ def extract(inputs, *, units=None, volts=None, eps_r=None, ground_plane=None, fl
     model = model_of(inputs, units=units, volts=volts, eps_r=eps_r, ground_plane=ground_plane,
                      floating=floating, dielectrics=dielectrics, loss_tangent=loss_tangent,
                      frequency=frequency, reference=reference)
-    settings = solve_settings(backend, solver, tol, block_tol, cache, cache_dir)
+    settings = solve_settings(backend, solver, tol, block_tol, cache, cache_dir, cache_max)
     if out is not None:
         check_output_folder(out, model.files(), output_names(model), force)
     _announce(_count_panels(model, max_panels, progress), settings)
@@ -158,7 +160,7 @@ def field(inputs, *, box=None, margin=0.5, spacing=None, points=41, slices=(), a
           unit_fields=False, png=False, units=None, volts=None, eps_r=None, ground_plane=None,
           floating=(), dielectrics=(), loss_tangent=None, frequency=None, reference=None,
           backend="auto", solver="auto", tol=1e-7, block_tol=1e-5, cache=True, cache_dir=None,
-          max_panels=None, out=None, force=False, progress=False, report=False):
+          cache_max=None, max_panels=None, out=None, force=False, progress=False, report=False):
     """Solve as extract does, then evaluate the potential, field and energy density: a
     FieldResult with the energy balance, peak fields, forces and the evaluated arrays.
 
@@ -173,7 +175,7 @@ def field(inputs, *, box=None, margin=0.5, spacing=None, points=41, slices=(), a
     model = model_of(inputs, units=units, volts=volts, eps_r=eps_r, ground_plane=ground_plane,
                      floating=floating, dielectrics=dielectrics, loss_tangent=loss_tangent,
                      frequency=frequency, reference=reference)
-    settings = solve_settings(backend, solver, tol, block_tol, cache, cache_dir)
+    settings = solve_settings(backend, solver, tol, block_tol, cache, cache_dir, cache_max)
     request = field_request(LENGTH_UNITS[model.length_unit], box=box, margin=margin,
                             spacing=spacing, points=points, slices=slices, at=at,
                             unit_fields=unit_fields, png=png)

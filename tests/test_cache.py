@@ -2,15 +2,27 @@
 
 Reference for the scaling: C is proportional to the permittivity of a uniform medium (closed
 form: the Laplace problem has eps only as a factor). Other checks compare a cached run with
-the run that filled the cache.
+the run that filled the cache. The size cap evicts the least recently used entries first
+(the LRU rule: Mattson, Gecsei, Slutz and Traiger 1970, IBM Systems Journal 9(2), from
+memory); last use is an entry's modification time, set here by hand where order matters.
 """
+
+import os
+import time
 
 import numpy as np
 import pytest
 from conftest import make_panels
 
+from bem3d.base.errors import ModelError
 from bem3d.geometry import shapes
-from bem3d.operators.cache import OperatorCache, cache_key, default_folder
+from bem3d.operators.cache import (
+    DEFAULT_MAX_GB,
+    OperatorCache,
+    cache_key,
+    default_folder,
+    size_cap,
+)
 from bem3d.solve.conductors import solve_panels
 
 
@@ -69,3 +81,65 @@ def test_default_folder_follows_the_environment(monkeypatch, tmp_path):
     assert default_folder() == tmp_path / "bem3d"
     monkeypatch.setenv("BEM3D_CACHE_DIR", str(tmp_path / "mine"))
     assert default_folder() == tmp_path / "mine"
+
+
+def _age(path, seconds):
+    then = time.time() - seconds
+    os.utime(path, (then, then))
+
+
+def test_the_cap_evicts_the_least_recently_used(tmp_path):
+    store = OperatorCache(tmp_path, max_bytes=10**12)
+    a = store.save("a" * 64, {"x": np.zeros(100_000)})
+    b = store.save("b" * 64, {"x": np.zeros(100_000)})
+    _age(a, 300)
+    _age(b, 200)
+    assert [e.path for e in store.entries()] == [a, b]
+    assert store.load("a" * 64, ["x"]) is not None          # a reuse makes a the newest
+    assert [e.path for e in store.entries()] == [b, a]
+    size = a.stat().st_size
+    store.max_bytes = int(2.5 * size)
+    c = store.save("c" * 64, {"x": np.zeros(100_000)})
+    assert not b.exists() and a.exists() and c.exists()
+    assert sum(e.size for e in store.entries()) <= store.max_bytes
+
+
+def test_an_entry_is_never_evicted_by_its_own_store(tmp_path):
+    store = OperatorCache(tmp_path, max_bytes=1)            # smaller than any entry
+    a = store.save("a" * 64, {"x": np.zeros(10)})
+    assert a.exists()
+    b = store.save("b" * 64, {"x": np.zeros(10)})
+    assert b.exists() and not a.exists()
+
+
+def test_a_solve_keeps_its_operator_under_a_tiny_cap(pair, tmp_path):
+    first = run(pair, tmp_path, cache_max_bytes=1)
+    assert first.solver["cache"] == "stored" and len(list(tmp_path.glob("*.npz"))) == 1
+    assert run(pair, tmp_path, cache_max_bytes=1).solver["cache"] == "hit"
+
+
+def test_clear_spares_temporary_files_and_other_folders(tmp_path):
+    store = OperatorCache(tmp_path)
+    old = store.save("a" * 64, {"x": np.zeros(3)})
+    new = store.save("b" * 64, {"x": np.zeros(3)})
+    _age(old, 3 * 86400)
+    running = tmp_path / ".bem3d-tmp-1-x.npz"                # a save in progress
+    running.write_bytes(b"")
+    (tmp_path / "numba").mkdir()
+    assert [e.path for e in store.clear(older_than_days=2)] == [old]
+    assert new.exists()
+    assert [e.path for e in store.clear()] == [new]
+    assert running.exists() and (tmp_path / "numba").is_dir()
+
+
+def test_size_cap_from_option_environment_or_default(monkeypatch):
+    monkeypatch.delenv("BEM3D_CACHE_MAX_GB", raising=False)
+    assert size_cap() == DEFAULT_MAX_GB * 1e9
+    monkeypatch.setenv("BEM3D_CACHE_MAX_GB", "0.5")
+    assert size_cap() == 5e8 and size_cap(2) == 2e9
+    for bad in ("-1", "0", "nan", "lots"):
+        monkeypatch.setenv("BEM3D_CACHE_MAX_GB", bad)
+        with pytest.raises(ModelError, match="BEM3D_CACHE_MAX_GB"):
+            size_cap()
+    with pytest.raises(ModelError, match="cache_max"):
+        size_cap(0)

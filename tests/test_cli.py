@@ -118,8 +118,38 @@ def test_compressed_backend_and_its_cache_from_the_command_line(two_spheres, tmp
                                    rtol=1e-6, atol=1e-6 * dense.max())
 
 
+def test_cache_list_and_clear(tmp_path, monkeypatch, capsys):
+    # Entries stored by the cache itself; ages set on their modification times (last use).
+    import os
+    import time
+
+    from bem3d.operators.cache import OperatorCache
+
+    folder = tmp_path / "ops"
+    monkeypatch.setenv("BEM3D_CACHE_DIR", str(folder))
+    store = OperatorCache()
+    old, new = store.save("a" * 64, {"x": np.zeros(1000)}), store.save("b" * 64, {"x": np.ones(9)})
+    ten_days_ago = time.time() - 10 * 86400
+    os.utime(old, (ten_days_ago, ten_days_ago))
+    code, out, _ = run(["cache", "list"], capsys)
+    lines = out.strip().splitlines()
+    assert code == 0 and len(lines) == 3
+    assert lines[0].startswith(old.name) and lines[1].startswith(new.name)    # oldest first
+    assert lines[2].startswith("2 entries") and str(folder) in lines[2]
+    code, out, _ = run(["cache", "clear", "--older-than", "1"], capsys)
+    assert code == 0 and out.startswith("removed 1 entries")
+    assert not old.exists() and new.exists()
+    code, out, _ = run(["cache", "clear", "--cache-dir", folder], capsys)
+    assert code == 0 and not new.exists()
+    code, out, _ = run(["cache", "list", "--cache-dir", tmp_path / "none"], capsys)
+    assert code == 0 and out.startswith("0 entries")
+    code, _, err = run(["cache", "clear", "--older-than", "-2"], capsys)
+    assert code == 2 and "--older-than" in err and len(err.strip().splitlines()) == 1
+
+
 @pytest.mark.parametrize("extra, words", [(["--block-tol", "0"], "--block-tol"),
                                           (["--tol", "2"], "--tol"),
+                                          (["--cache-max", "0"], "--cache-max"),
                                           (["--backend", "compressed", "--solver", "direct"],
                                            "direct solver needs the dense backend")])
 def test_bad_solver_options_exit_2(two_spheres, tmp_path, capsys, extra, words):

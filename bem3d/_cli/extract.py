@@ -78,7 +78,8 @@ def run(args):
         print("\n".join(sensitivity_lines(result.names, sensitivity)))
     print(solver_line(result.solver))
     t = result.timings
-    print(f"wall time {t['total']:.2f} s (assembly {t['assembly']:.2f} s, "
+    compiling = f"compiling kernels {t['compile']:.2f} s, " if t.get("compile") else ""
+    print(f"wall time {t['total']:.2f} s ({compiling}assembly {t['assembly']:.2f} s, "
           f"solve {t['solve']:.2f} s); peak memory {result.solver['peak_memory_MiB']:.0f} MiB")
     print(f"caution: {CAUTION}")
     print(f"wrote {', '.join(f.name for f in result.files)} to {model.output_folder}")

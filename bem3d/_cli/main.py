@@ -5,7 +5,7 @@ import argparse
 import os
 import sys
 
-from bem3d._cli import check_mesh, converge, demo, exits, extract, field, sweep
+from bem3d._cli import cache, check_mesh, converge, demo, exits, extract, field, sweep
 from bem3d._cli.terminal import safe_streams
 from bem3d.base.version import __version__
 from bem3d.export.names import terminal_text
@@ -36,7 +36,7 @@ def _parser():
     parser.add_argument("--version", action="version", version=f"bem3d {__version__}")
     parser.add_argument("--debug", action="store_true", help="show tracebacks")
     sub = parser.add_subparsers(dest="command", required=True)
-    for command in (extract, field, demo, check_mesh, sweep, converge):
+    for command in (extract, field, demo, check_mesh, sweep, converge, cache):
         command.add_parser(sub).set_defaults(run=command.run)
     return parser
 

@@ -63,6 +63,9 @@ def add_solver_options(p):
     p.add_argument("--cache-dir", type=Path,
                    help="where the compressed backend keeps assembled operators (default "
                         "$BEM3D_CACHE_DIR, else ~/.cache/bem3d)")
+    p.add_argument("--cache-max", type=float, metavar="GB",
+                   help="size cap of the operator cache: least recently used operators are "
+                        "deleted beyond it (default $BEM3D_CACHE_MAX_GB, else 4 GB)")
     p.add_argument("--no-cache", action="store_true",
                    help="neither read nor write the operator cache")
 
@@ -70,7 +73,8 @@ def add_solver_options(p):
 def solver_settings(args):
     """The solve settings of extract and field, as keyword arguments of the API."""
     return {"backend": args.backend, "solver": args.solver, "tol": args.tol,
-            "block_tol": args.block_tol, "cache": not args.no_cache, "cache_dir": args.cache_dir}
+            "block_tol": args.block_tol, "cache": not args.no_cache, "cache_dir": args.cache_dir,
+            "cache_max": args.cache_max}
 
 
 def model_from_args(args):

@@ -71,8 +71,9 @@ def _aca(r0, m, c0, n, eps, kmax, operator, rule):
     used_col = np.zeros(n, np.bool_)
     seed = (r0 * 7919 + c0 * 104729) % 2147483648
     norm2 = 0.0
-    k = 0
-    i = 0
+    # typed int64 from the start: a literal 0 would compile the residual kernels once more
+    k = np.int64(0)
+    i = np.int64(0)
     while k < kmax:
         used_row[i] = True
         _residual_row(i, r0, c0, n, k, u, v, v[k], operator, rule)

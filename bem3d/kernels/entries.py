@@ -35,10 +35,11 @@ def block_entries(i0, di, j0, dj, count, out, operator, rule):
     raise NotImplementedError("only callable from compiled code")
 
 
-@overload(block_entries, jit_options={"cache": True}, inline="always")
+@overload(block_entries, jit_options={"cache": True})
 def _entries_by_kind(i0, di, j0, dj, count, out, operator, rule):
     # chosen once per structure type at compile time, so the ACA, recompression and block
-    # filling serve both operators
+    # filling serve both operators. Not inlined: inlined, the callers' constant di, dj would
+    # reach the entries kernel as literal types and compile it once more for each
     if getattr(operator, "instance_class", None) is SingleLayer:
         def single_layer(i0, di, j0, dj, count, out, operator, rule):
             _single_layer_entries(i0, di, j0, dj, count, out, operator, rule)
@@ -240,9 +241,14 @@ def fill_dense_blocks(blocks, rules, offsets, data, operator, symmetric):
         r0, m, c0, n = blocks[b, 0], blocks[b, 1], blocks[b, 2], blocks[b, 3]
         off = offsets[b]
         diagonal = symmetric and r0 == c0
+        # rows in float64 as the ACA takes them, so that one compiled entries kernel serves
+        # both; each entry is rounded once to the storage type, as when written directly
+        row = np.empty(n)
         for i in range(m):
-            block_entries(r0 + i, 0, c0, 1, i + 1 if diagonal else n, data[off + i * n:], operator,
-                     rules[b])
+            count = i + 1 if diagonal else n
+            block_entries(r0 + i, 0, c0, 1, count, row, operator, rules[b])
+            for j in range(count):
+                data[off + i * n + j] = row[j]
         if diagonal:
             for i in range(m):
                 for j in range(i + 1, n):

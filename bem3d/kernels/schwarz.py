@@ -23,27 +23,40 @@ def subdomain_inverses(bounds, areas, dense_ptr, dense_idx, dense_blocks, dense_
     numbering), written row-major to out[inv_offsets[d]:]. The stored blocks inside
     subdomain d are dense_idx[dense_ptr[d]:dense_ptr[d + 1]] and lr_idx[lr_ptr[d]:]."""
     for d in prange(bounds.shape[0] - 1):
-        a, size = bounds[d], bounds[d + 1] - bounds[d]
-        sub = np.zeros((size, size))
-        for q in range(dense_ptr[d], dense_ptr[d + 1]):
-            b = dense_idx[q]
-            r0, m = dense_blocks[b, 0], dense_blocks[b, 1]
-            c0, n = dense_blocks[b, 2], dense_blocks[b, 3]
-            block = dense_data[dense_offsets[b]:dense_offsets[b] + m * n].reshape((m, n))
-            sub[r0 - a:r0 - a + m, c0 - a:c0 - a + n] += block
-            if r0 != c0:
-                sub[c0 - a:c0 - a + n, r0 - a:r0 - a + m] += block.T
-        for q in range(lr_ptr[d], lr_ptr[d + 1]):
-            b = lr_idx[q]
-            r0, m, c0, n = lr_blocks[b, 0], lr_blocks[b, 1], lr_blocks[b, 2], lr_blocks[b, 3]
-            r = lr_ranks[b]
-            off = lr_offsets[b]
-            block = (lr_data[off:off + m * r].reshape((m, r))
-                     @ lr_data[off + m * r:off + (m + n) * r].reshape((n, r)).T)
-            sub[r0 - a:r0 - a + m, c0 - a:c0 - a + n] += block
+        # one index type: the parallel loop's own (unsigned) would compile the callee twice
+        _subdomain_inverse(np.int64(d), bounds, areas, dense_ptr, dense_idx, dense_blocks, dense_offsets,
+                           dense_data, lr_ptr, lr_idx, lr_blocks, lr_offsets, lr_ranks, lr_data,
+                           inv_offsets, out)
+
+
+@njit(cache=True)
+def _subdomain_inverse(d, bounds, areas, dense_ptr, dense_idx, dense_blocks, dense_offsets,
+                       dense_data, lr_ptr, lr_idx, lr_blocks, lr_offsets, lr_ranks, lr_data,
+                       inv_offsets, out):
+    # subdomain d of subdomain_inverses, apart from its parallel loop: its array expressions
+    # would otherwise each go through the parallel compiler's analysis, for nothing (parallel
+    # loops nested in one run serially), which only lengthens the first run's compiling
+    a, size = bounds[d], bounds[d + 1] - bounds[d]
+    sub = np.zeros((size, size))
+    for q in range(dense_ptr[d], dense_ptr[d + 1]):
+        b = dense_idx[q]
+        r0, m = dense_blocks[b, 0], dense_blocks[b, 1]
+        c0, n = dense_blocks[b, 2], dense_blocks[b, 3]
+        block = dense_data[dense_offsets[b]:dense_offsets[b] + m * n].reshape((m, n))
+        sub[r0 - a:r0 - a + m, c0 - a:c0 - a + n] += block
+        if r0 != c0:
             sub[c0 - a:c0 - a + n, r0 - a:r0 - a + m] += block.T
-        inv = zero_charge_inverse(np.linalg.inv(sub), areas[a:a + size])
-        out[inv_offsets[d]:inv_offsets[d] + size * size] = (0.5 * (inv + inv.T)).ravel()
+    for q in range(lr_ptr[d], lr_ptr[d + 1]):
+        b = lr_idx[q]
+        r0, m, c0, n = lr_blocks[b, 0], lr_blocks[b, 1], lr_blocks[b, 2], lr_blocks[b, 3]
+        r = lr_ranks[b]
+        off = lr_offsets[b]
+        block = (lr_data[off:off + m * r].reshape((m, r))
+                 @ lr_data[off + m * r:off + (m + n) * r].reshape((n, r)).T)
+        sub[r0 - a:r0 - a + m, c0 - a:c0 - a + n] += block
+        sub[c0 - a:c0 - a + n, r0 - a:r0 - a + m] += block.T
+    inv = zero_charge_inverse(np.linalg.inv(sub), areas[a:a + size])
+    out[inv_offsets[d]:inv_offsets[d] + size * size] = (0.5 * (inv + inv.T)).ravel()
 
 
 @njit(cache=True)

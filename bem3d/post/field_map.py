@@ -2,7 +2,6 @@
 
 import math
 import sys
-import time
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -17,6 +16,7 @@ from bem3d.operators.points import evaluate
 from bem3d.post.energy import energy_balance
 from bem3d.post.fields import conductor_forces, peak_fields, surface_fields
 from bem3d.post.grid import Grid
+from bem3d.solve.compiling import announce_compiling, clock, compile_seconds_since, seconds_since
 from bem3d.solve.dielectric import medium_at
 
 #: Largest number of grid points a run may ask for (each point costs ~100 bytes per excitation).
@@ -281,26 +281,28 @@ def compute_field_map(panels, result, request, plan, progress=False):
 
     plan: request.plan(panels), made before the solve so that a bad request costs nothing."""
     grid, slice_grids, listed = plan
-    ev = _Evaluator(panels, result, request.unit_fields, progress)
-    dielectric = bool(ev.source.bodies)
-
-    start = time.perf_counter()
-    grid_points = grid.points()
-    grid_fields = ev.fields(grid_points, "grid")
-    grid_eps = ev.eps(grid_points)
-    boundary = grid.boundary()
-    boundary_fields = ev.fields(boundary[0], "box faces", columns=1)
-    balance = energy_balance(panels, result, grid, grid_fields, boundary_fields, boundary,
-                             ev.ground_z, grid_eps, ev.eps(boundary[0]), ev.given_source)
-    size = float(np.ptp(panels.vertices.reshape(-1, 3), axis=0).max())
-    eps_panel = ev.eps(panels.centroids + 1e-6 * size * panels.normals) / EPS0
-    surface = surface_fields(panels, result.panel_sigma(), eps_panel, ground_z=ev.ground_z,
-                             source=ev.given_source)
-    force, torque = conductor_forces(panels, surface)
-    peaks = peak_fields(panels, surface)
-    slice_fields = [ev.fields(sgrid.points(), "slice") for _, _, sgrid in slice_grids]
-    listed_fields = None if listed is None else ev.fields(listed, "points")
-    result.timings_s["fields"] = time.perf_counter() - start
+    start = clock()
+    with announce_compiling("fields", progress):
+        ev = _Evaluator(panels, result, request.unit_fields, progress)
+        dielectric = bool(ev.source.bodies)
+        grid_points = grid.points()
+        grid_fields = ev.fields(grid_points, "grid")
+        grid_eps = ev.eps(grid_points)
+        boundary = grid.boundary()
+        boundary_fields = ev.fields(boundary[0], "box faces", columns=1)
+        balance = energy_balance(panels, result, grid, grid_fields, boundary_fields, boundary,
+                                 ev.ground_z, grid_eps, ev.eps(boundary[0]), ev.given_source)
+        size = float(np.ptp(panels.vertices.reshape(-1, 3), axis=0).max())
+        eps_panel = ev.eps(panels.centroids + 1e-6 * size * panels.normals) / EPS0
+        surface = surface_fields(panels, result.panel_sigma(), eps_panel, ground_z=ev.ground_z,
+                                 source=ev.given_source)
+        force, torque = conductor_forces(panels, surface)
+        peaks = peak_fields(panels, surface)
+        slice_fields = [ev.fields(sgrid.points(), "slice") for _, _, sgrid in slice_grids]
+        listed_fields = None if listed is None else ev.fields(listed, "points")
+    result.timings_s["fields"] = seconds_since(start)
+    result.timings_s["compile"] = (result.timings_s.get("compile", 0.0)
+                                   + compile_seconds_since(start))
 
     record = dict(balance)
     record.update({

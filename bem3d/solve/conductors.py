@@ -2,7 +2,6 @@
 
 import math
 import sys
-import time
 
 import numpy as np
 from threadpoolctl import threadpool_limits
@@ -22,6 +21,7 @@ from bem3d.solve.backend import (
     choose_backend,
     plan_memory,
 )
+from bem3d.solve.compiling import announce_compiling, clock, compile_seconds_since, seconds_since
 from bem3d.solve.dielectric import plan_dielectrics, solve_system
 from bem3d.solve.dielectric_compressed import DielectricPlan, solve_planned
 from bem3d.solve.krylov import solve_cg, solve_direct
@@ -40,8 +40,8 @@ def _largest(values):
 
 def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto", tol=1e-7,
                  progress=False, ground_z=None, floating=(), dielectrics=(), *, backend="auto",
-                 compression=None, cache=False, cache_dir=None, loss_tangent=0.0,
-                 frequency=None, reference=None):
+                 compression=None, cache=False, cache_dir=None, cache_max_bytes=None,
+                 loss_tangent=0.0, frequency=None, reference=None):
     """Capacitance of the conductors in `panels` (metres) in a medium of relative permittivity eps_r.
 
     volts: {conductor name: V}; conductors not named are at 0 V. solver: 'direct' (Cholesky),
@@ -53,7 +53,8 @@ def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto"
     backend; its tolerance bounds each far block's relative error, which moves the
     capacitances by less than that (tools/bench_scale.py measures it against dense).
     cache: keep the compressed operator, its preconditioner and solution in cache_dir (default
-    cache.default_folder()) and reuse them when the same panels and settings come again.
+    cache.default_folder()) and reuse them when the same panels and settings come again;
+    cache_max_bytes: its size cap (default cache.size_cap()).
     ground_z: height (m) of an infinite grounded plane (method of images), or None.
     floating: names of conductors with zero net charge and unknown potential.
     dielectrics: dielectric.DielectricBody list; eps_r is then the background around them.
@@ -67,8 +68,11 @@ def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto"
     lossy = check_loss(loss_tangent, frequency, dielectrics)
     if dielectrics:
         background = complex_permittivity(eps_r, loss_tangent)
-        result = _solve_dielectric(panels, volts, background, rules, tol, ground_z,
-                                   dielectrics, backend, compression, progress)
+        mark = clock()
+        with announce_compiling("dielectric", progress):
+            result = _solve_dielectric(panels, volts, background, rules, tol, ground_z,
+                                       dielectrics, backend, compression, progress)
+        result.timings_s["compile"] = compile_seconds_since(mark)
         result.solver.update({"floating": list(floating),
                               "dielectrics": {b.name: b.eps_r for b in dielectrics}})
         if lossy:
@@ -79,14 +83,18 @@ def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto"
     have = available_memory()
     backend, solver = choose_backend(len(panels), backend, solver, have)
     rhs = panels.excitation()
-    if backend == "dense":
-        report, settings, timings = _solve_dense(panels, rhs, eps_r, rules, solver, tol,
-                                                 ground_z, have, progress)
-    else:
-        compression = compression or Compression()
-        report, settings, timings = _solve_compressed(panels, rhs, eps_r, rules, tol,
-                                                      compression, ground_z, have, progress,
-                                                      cache, cache_dir)
+    mark = clock()
+    with announce_compiling(backend, progress):
+        if backend == "dense":
+            report, settings, timings = _solve_dense(panels, rhs, eps_r, rules, solver, tol,
+                                                     ground_z, have, progress)
+        else:
+            compression = compression or Compression()
+            report, settings, timings = _solve_compressed(panels, rhs, eps_r, rules, tol,
+                                                          compression, ground_z, have,
+                                                          progress, cache, cache_dir,
+                                                          cache_max_bytes)
+    timings["compile"] = compile_seconds_since(mark)
     maxwell = rhs.T @ report.charges
     settings.update({"backend": backend, "solver": report.method,
                      "iterations": report.iterations,
@@ -133,11 +141,11 @@ def _solve_dense(panels, rhs, eps_r, rules, solver, tol, ground_z, have, progres
     timings = {}
     _log(progress, f"assembling {len(panels)} panels, dense backend: {format_bytes(need)} of "
                    f"{format_bytes(have)} available ...")
-    t0 = time.perf_counter()
+    t0 = clock()
     operator = DenseOperator(panels, eps_r=eps_r, rules=rules, ground_z=ground_z)
-    timings["assembly"] = time.perf_counter() - t0
+    timings["assembly"] = seconds_since(t0)
     _log(progress, f"solving ({solver}) ...")
-    t0 = time.perf_counter()
+    t0 = clock()
     if solver == "direct":
         report = solve_direct(operator.matrix, rhs)
     else:
@@ -147,19 +155,19 @@ def _solve_dense(panels, rhs, eps_r, rules, solver, tol, ground_z, have, progres
             pre = SchwarzPreconditioner.from_operator(operator, panels, SUBDOMAIN_SIZE)
             report = solve_cg(operator, rhs, tol=tol, max_iterations=MAX_ITERATIONS,
                               preconditioner=pre)
-    timings["solve"] = time.perf_counter() - t0
+    timings["solve"] = seconds_since(t0)
     return report, {"memory_estimate_MiB": need / 2**20}, timings
 
 
 def _solve_compressed(panels, rhs, eps_r, rules, tol, compression, ground_z, have, progress,
-                      cache, cache_dir):
+                      cache, cache_dir, cache_max_bytes):
     timings = {}
     settings = {"compression": compression.as_dict(), "subdomain_size": SUBDOMAIN_SIZE}
-    store = OperatorCache(cache_dir) if cache else None
+    store = OperatorCache(cache_dir, cache_max_bytes) if cache else None
     key = cache_key(panels, {"rules": rules.as_dict(), "compression": compression.as_dict(),
                              "ground_z": ground_z, "subdomain_size": SUBDOMAIN_SIZE})
     names = HMatrixOperator.ARRAY_NAMES + SchwarzPreconditioner.ARRAY_NAMES + ("solution",)
-    t0 = time.perf_counter()
+    t0 = clock()
     hit = store.load(key, names) if store else None
     if hit is not None:
         _log(progress, f"compressed operator for {len(panels)} panels from the cache "
@@ -167,7 +175,7 @@ def _solve_compressed(panels, rhs, eps_r, rules, tol, compression, ground_z, hav
         operator = HMatrixOperator(hit, eps_r)
         pre = SchwarzPreconditioner.from_arrays(hit, 1.0 / operator.scale)
         x0 = hit["solution"] / operator.scale
-        timings.update({"assembly": time.perf_counter() - t0, "preconditioner": 0.0})
+        timings.update({"assembly": seconds_since(t0), "preconditioner": 0.0})
         settings["memory_estimate_MiB"] = (operator.nbytes + pre.nbytes) / 2**20
     else:
         plan = HMatrixPlan(panels, rules, compression, ground_z)
@@ -184,10 +192,10 @@ def _solve_compressed(panels, rhs, eps_r, rules, tol, compression, ground_z, hav
                                             MEMORY_FRACTION * have - plan.work_bytes(
                                                 rhs.shape[1], SUBDOMAIN_SIZE))
         del plan                                  # its kernel arguments are no longer needed
-        timings["assembly"] = time.perf_counter() - t0
-        t0 = time.perf_counter()
+        timings["assembly"] = seconds_since(t0)
+        t0 = clock()
         pre = SchwarzPreconditioner.from_operator(operator, panels, SUBDOMAIN_SIZE)
-        timings["preconditioner"] = time.perf_counter() - t0
+        timings["preconditioner"] = seconds_since(t0)
         x0 = None
     settings.update({"compression_ratio": operator.compression_ratio,
                      "operator_MiB": operator.nbytes / 2**20,
@@ -196,14 +204,14 @@ def _solve_compressed(panels, rhs, eps_r, rules, tol, compression, ground_z, hav
                                else "hit" if hit is not None else "stored")})
     _log(progress, f"operator {operator.nbytes / 2**20:.0f} MiB "
                    f"({operator.compression_ratio:.2%} of dense); solving (cg) ...")
-    t0 = time.perf_counter()
+    t0 = clock()
     # the threads are Numba's; BLAS threads on top (coarse solves) only contend with them
     with threadpool_limits(limits=1, user_api="blas"):
         report = solve_cg(operator, rhs, tol=tol, max_iterations=MAX_ITERATIONS,
                           preconditioner=pre, x0=x0)
-    timings["solve"] = time.perf_counter() - t0
+    timings["solve"] = seconds_since(t0)
     if store is not None and hit is None:
-        t0 = time.perf_counter()
+        t0 = clock()
         try:
             path = store.save(key, {**operator.arrays(), **pre.arrays(),
                                     "solution": report.charges * operator.scale})
@@ -212,7 +220,7 @@ def _solve_compressed(panels, rhs, eps_r, rules, tol, compression, ground_z, hav
             settings["cache"] = "not stored"
             print(f"warning: operator cache {store.folder} cannot be written "
                   f"({err.strerror or err}); the result is unaffected", file=sys.stderr)
-        timings["cache_write"] = time.perf_counter() - t0
+        timings["cache_write"] = seconds_since(t0)
     if store is not None:
         settings["cache_file"] = str(store.path(key))
     return report, settings, timings
@@ -231,9 +239,9 @@ def _solve_dielectric(panels, volts, eps_r, rules, tol, ground_z, dielectrics, b
         _log(progress, f"solving {len(panels)} conductor panels with "
                        f"{len(dielectrics)} dielectric bodies (dense LU): "
                        f"{format_bytes(system.nbytes)} of {format_bytes(have)} available ...")
-        t0 = time.perf_counter()
+        t0 = clock()
         result = solve_system(system, volts, rules)
-        result.timings_s.update({"assembly": 0.0, "solve": time.perf_counter() - t0})
+        result.timings_s.update({"assembly": 0.0, "solve": seconds_since(t0)})
         return result
     plan = DielectricPlan(system, rules, compression or Compression(), SUBDOMAIN_SIZE)
     work = plan.work_bytes(panels.n_conductors)

@@ -11,7 +11,6 @@ two-level Schwarz on the conductor rows, 1/w_k on the interface rows (the diagon
 block: a flat panel's own normal field vanishes)."""
 
 import math
-import time
 
 import numba
 import numpy as np
@@ -23,6 +22,7 @@ from bem3d.operators.hfield import FieldOperator, FieldPlan
 from bem3d.operators.hmatrix import Compression, HMatrixOperator, HMatrixPlan
 from bem3d.operators.kernel_data import normal_field
 from bem3d.operators.rules import PairRules
+from bem3d.solve.compiling import clock, seconds_since
 from bem3d.solve.dielectric import TEST_POINTS, system_result, system_rhs, union_panels
 from bem3d.solve.gmres import gmres_columns
 from bem3d.solve.schwarz import SchwarzPreconditioner
@@ -99,13 +99,13 @@ def solve_planned(plan, volts=None, tol=1e-7, max_iterations=1000, memory_limit=
     record. memory_limit: bytes the operators may take together (ResourceError beyond)."""
     system = plan.system
     nc, lam = len(system.conductors), system.lam
-    t0 = time.perf_counter()
+    t0 = clock()
     rest = None if memory_limit is None else memory_limit - plan.field_bytes()
     single = HMatrixOperator.assemble(plan.single, 1.0, rest)
     rest = None if memory_limit is None else memory_limit - single.nbytes
     field = None if plan.field is None else FieldOperator(plan.field, rest)
-    assembly = time.perf_counter() - t0
-    t0 = time.perf_counter()
+    assembly = seconds_since(t0)
+    t0 = clock()
     schwarz = _conductor_schwarz(single, plan.single.panels.areas, nc, plan.subdomain_size)
     scale = np.mean(single.diagonal()[:nc] / system.conductors.areas)
     weight = (scale * system.interfaces.areas)[:, None]
@@ -129,7 +129,7 @@ def solve_planned(plan, volts=None, tol=1e-7, max_iterations=1000, memory_limit=
     residual = float(np.max(np.linalg.norm(rows(total) - rhs, axis=0)
                             / np.linalg.norm(rhs, axis=0)))
     n = system.n_panels
-    solve = time.perf_counter() - t0
+    solve = seconds_since(t0)
     field_bytes = 0 if field is None else field.nbytes
     result = system_result(system, plan.both, total, volts, {
         "backend": "compressed", "solver": "gmres-schwarz (dielectric interfaces)",
