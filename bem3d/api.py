@@ -122,7 +122,8 @@ def _solve(model, settings, panels, progress, start):
 def extract(inputs, *, units=None, volts=None, eps_r=None, ground_plane=None, floating=(),
             dielectrics=(), loss_tangent=None, frequency=None, reference=None, backend="auto",
             solver="auto", tol=1e-7, block_tol=1e-5, cache=True, cache_dir=None, cache_max=None,
-            max_panels=None, out=None, force=False, progress=False, report=False):
+            max_panels=None, out=None, force=False, progress=False, report=False,
+            sensitivity=False):
     """Solve for the capacitance matrices of the conductors in `inputs`: a Result.
 
     inputs: mesh paths (one conductor per file, or groups within one file), one .toml model
@@ -139,7 +140,9 @@ def extract(inputs, *, units=None, volts=None, eps_r=None, ground_plane=None, fl
     $BEM3D_CACHE_MAX_GB, else 4). max_panels: refuse a larger model before any assembly.
     out: also write the result files into this folder (refused before solving if it holds an
     earlier run's files, unless force). progress: report progress on stderr. report: with
-    out, also write report.html (one self-contained page for a design review)."""
+    out, also write report.html (one self-contained page for a design review). sensitivity:
+    also write the sensitivities dC/dx into result.json (Result.sensitivity computes them on
+    first use either way; they cost a field of every panel on every panel)."""
     start = time.perf_counter()
     model = model_of(inputs, units=units, volts=volts, eps_r=eps_r, ground_plane=ground_plane,
                      floating=floating, dielectrics=dielectrics, loss_tangent=loss_tangent,
@@ -150,7 +153,7 @@ def extract(inputs, *, units=None, volts=None, eps_r=None, ground_plane=None, fl
     _announce(_count_panels(model, max_panels, progress), settings)
     panels, warnings = read_conductors(model.meshes, units=model.length_unit)
     result = Result(_solve(model, settings, panels, progress, start), panels, model,
-                    warnings + model.notes)
+                    warnings + model.notes, sensitivity)
     if out is not None:
         result.save(out, force, report)
     return result
@@ -160,7 +163,8 @@ def field(inputs, *, box=None, margin=0.5, spacing=None, points=41, slices=(), a
           unit_fields=False, png=False, units=None, volts=None, eps_r=None, ground_plane=None,
           floating=(), dielectrics=(), loss_tangent=None, frequency=None, reference=None,
           backend="auto", solver="auto", tol=1e-7, block_tol=1e-5, cache=True, cache_dir=None,
-          cache_max=None, max_panels=None, out=None, force=False, progress=False, report=False):
+          cache_max=None, max_panels=None, out=None, force=False, progress=False, report=False,
+          sensitivity=False):
     """Solve as extract does, then evaluate the potential, field and energy density: a
     FieldResult with the energy balance, peak fields, forces and the evaluated arrays.
 
@@ -169,6 +173,7 @@ def field(inputs, *, box=None, margin=0.5, spacing=None, points=41, slices=(), a
     (NX, NY, NZ)), slices ('z=0.25' or ('z', 0.25)), at (a CSV file of x, y, z or an (m, 3)
     array). unit_fields: also each conductor's field at 1 V. png: pictures with the files.
     report: with out, also write report.html, the pictures in it (report implies png).
+    sensitivity: as in extract.
     Other settings as in extract."""
     png = png or report
     start = time.perf_counter()
@@ -193,7 +198,7 @@ def field(inputs, *, box=None, margin=0.5, spacing=None, points=41, slices=(), a
     solved = _solve(model, settings, panels, progress, start)
     field_map = compute_field_map(panels, solved, request, plan, progress)
     result = FieldResult(solved, panels, model, warnings + model.notes, field_map, png,
-                         request.point_file)
+                         request.point_file, sensitivity)
     if out is not None:
         result.save(out, force, report)
     return result

@@ -26,11 +26,14 @@ class Result:
     does not apply yet (the warnings say why). Shown in a notebook it prints its tables, never
     arrays."""
 
-    def __init__(self, solved, panels, model, warnings=()):
+    def __init__(self, solved, panels, model, warnings=(), sensitivity=False):
         self._solved, self._panels_m, self.model = solved, panels, model
         self.warnings = list(warnings)
+        # the sensitivities cost a field of every panel on every panel, more than the solve:
+        # written and printed only when asked (the property computes them on first use)
+        self.with_sensitivity = sensitivity
         self._sensitivity_problem = sensitivity_problem(solved, panels)
-        if self._sensitivity_problem:
+        if self._sensitivity_problem and sensitivity:
             self.warnings.append(self._sensitivity_problem)
         self._sensitivity = None
         self.files = []
@@ -71,8 +74,8 @@ class Result:
         return {name: d.copy() for name, d in self._sensitivity.items()}
 
     def _record_keys(self):
-        """The keys Result adds to result.json: the sensitivities, when they apply."""
-        sensitivity = self.sensitivity
+        """The keys Result adds to result.json: the sensitivities, when asked and they apply."""
+        sensitivity = self.sensitivity if self.with_sensitivity else None
         if sensitivity is None:
             return {}
         return {"maxwell_sensitivity_F_per_m": {name: d.tolist()
@@ -164,8 +167,9 @@ class FieldResult(Result):
     record: the energy balance (J), peak fields (V/m), forces (N) and torques (N m);
     grid_arrays, slices and at: the evaluated arrays (SI; coordinates of `grid` in metres)."""
 
-    def __init__(self, solved, panels, model, warnings, field_map, png=False, point_file=None):
-        super().__init__(solved, panels, model, warnings)
+    def __init__(self, solved, panels, model, warnings, field_map, png=False, point_file=None,
+                 sensitivity=False):
+        super().__init__(solved, panels, model, warnings, sensitivity)
         self.field_map, self.png, self.point_file = field_map, png, point_file
         self.picture_problems = []
 

@@ -163,7 +163,8 @@ def test_result_json_and_console_list_the_sensitivities(tmp_path, capsys):
 
     a = _mesh(tmp_path / "a.stl", shapes.octahedral_sphere(1.0, 3))
     b = _mesh(tmp_path / "b.stl", shapes.octahedral_sphere(1.0, 3, center=(3.0, 0, 0)))
-    code, out, _ = run_cli(["extract", a, b, "--units", "um", "--out", tmp_path / "o"], capsys)
+    code, out, _ = run_cli(["extract", a, b, "--units", "um", "--out", tmp_path / "o",
+                            "--sensitivity"], capsys)
     assert code == 0 and "fF/um" in out
     record = json.loads((tmp_path / "o" / "result.json").read_text())
     d = np.array(record["maxwell_sensitivity_F_per_m"]["b"])
@@ -177,8 +178,17 @@ def test_result_json_and_console_list_the_sensitivities(tmp_path, capsys):
 def test_dielectric_bodies_omit_the_sensitivities_with_a_warning(tmp_path):
     ball = _mesh(tmp_path / "ball.stl", shapes.octahedral_sphere(0.5, 3))
     shell = _mesh(tmp_path / "shell.stl", shapes.octahedral_sphere(1.0, 3))
-    result = api.extract([ball], dielectrics={shell: 3.0}, out=tmp_path / "o")
+    result = api.extract([ball], dielectrics={shell: 3.0}, out=tmp_path / "o", sensitivity=True)
     assert result.sensitivity is None
     assert any("not given with dielectric bodies" in w for w in result.warnings)
     record = json.loads((tmp_path / "o" / "result.json").read_text())
     assert "maxwell_sensitivity_F_per_m" not in record
+
+
+def test_sensitivities_are_written_only_when_asked(tmp_path):
+    a = _mesh(tmp_path / "a.stl", shapes.octahedral_sphere(1.0, 3))
+    b = _mesh(tmp_path / "b.stl", shapes.octahedral_sphere(1.0, 3, center=(3.0, 0, 0)))
+    result = api.extract([a, b], out=tmp_path / "o")
+    record = json.loads((tmp_path / "o" / "result.json").read_text())
+    assert "maxwell_sensitivity_F_per_m" not in record
+    assert set(result.sensitivity) == {"a", "b"}          # computed on first use in Python

@@ -22,6 +22,10 @@ def add_parser(subparsers):
     add_model_options(p)
     add_run_guards(p)
     add_solver_options(p)
+    p.add_argument("--sensitivity", action="store_true",
+                   help="also give dC/dx, dC/dy, dC/dz of the Maxwell matrix for each conductor "
+                        "moved alone (result.json; the largest printed); costs a field of every "
+                        "panel on every panel")
     p.add_argument("--report", action="store_true",
                    help="also write report.html: one self-contained page (model, matrices, "
                         "couplings, warnings, solver record, cautions) that opens offline "
@@ -67,13 +71,13 @@ def run(args):
     model = model_from_args(args)
     result = api.extract(model, **solver_settings(args), max_panels=args.max_panels,
                          out=model.output_folder, force=args.force, progress=not args.quiet,
-                         report=args.report)
+                         report=args.report, sensitivity=args.sensitivity)
     if args.quiet:
         return 0
     print_units_hint(args, result.panels.vertices)
     print_warnings(result.warnings)
     print(result.table())
-    sensitivity = result.sensitivity
+    sensitivity = result.sensitivity if args.sensitivity else None
     if sensitivity is not None:
         print("\n".join(sensitivity_lines(result.names, sensitivity)))
     print(solver_line(result.solver))

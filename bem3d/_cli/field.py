@@ -42,6 +42,9 @@ def add_parser(subparsers):
                    help="also write each conductor's field at 1 V (others 0 V) for superposition")
     p.add_argument("--png", action="store_true",
                    help="render surface_charge.png and field_slice.png")
+    p.add_argument("--sensitivity", action="store_true",
+                   help="also write dC/dx, dC/dy, dC/dz of the Maxwell matrix for each "
+                        "conductor moved alone into result.json")
     p.add_argument("--report", action="store_true",
                    help="also write report.html: one self-contained page (model, matrices, "
                         "couplings, warnings, solver record, cautions; energy, peak fields, forces and the pictures) that opens offline "
@@ -56,7 +59,8 @@ def run(args):
                        points=args.points, slices=args.slice, at=args.at,
                        unit_fields=args.unit_fields, png=args.png, **solver_settings(args),
                        max_panels=args.max_panels, out=model.output_folder, force=args.force,
-                       progress=not args.quiet, report=args.report)
+                       progress=not args.quiet, report=args.report,
+                       sensitivity=args.sensitivity)
     if not args.quiet:
         print_units_hint(args, result.panels.vertices)
         print_field_summary(result)
