@@ -5,7 +5,7 @@ import numpy as np
 
 from bem3d.base.constants import LENGTH_UNITS
 from bem3d.base.units import prefix_for
-from bem3d.geometry.plane_cut import plane_cut
+from bem3d.geometry.plane_cut import footprint, plane_cut
 
 #: |E| is shown from this fraction of its 99.5th percentile up (energy density: its square).
 FIELD_DECADES = 1e-3
@@ -57,22 +57,27 @@ def _clipped_log_norm(values, floor):
     return LogNorm(vmin=floor * top, vmax=top, clip=True)
 
 
-def _outlines(ax, panels, axis, value, plane_axes, scale):
-    """The conductors' cross-sections on the slice, outlined and labelled at their top."""
+def _outlines(ax, panels, axis, value, plane_axes, scale, reach):
+    """The conductors' cross-sections on the slice (thick, cyan) and the sheets within reach
+    (m) of it (thin, white: pads just under a slice), each conductor named at its top."""
     from matplotlib.collections import LineCollection
 
-    segments, cut = plane_cut(panels.vertices, axis, value)
-    owner = panels.owner[cut]
+    cuts, footprints = plane_cut(panels.vertices, axis, value), footprint(panels.vertices,
+                                                                         axis, value, reach)
     for index, name in enumerate(panels.names):
-        mine = segments[owner == index][:, :, plane_axes] / scale
-        if not len(mine):
-            continue
-        ax.add_collection(LineCollection(mine, colors="cyan", linewidths=1.4))
-        top = mine.reshape(-1, 2)[np.argmax(mine[:, :, 1].ravel())]
-        ax.annotate(name, top, xytext=(0, 4), textcoords="offset points", ha="center",
-                    va="bottom", fontsize=8, color="black",
-                    bbox={"boxstyle": "round,pad=0.2", "fc": "white", "ec": "none",
-                          "alpha": 0.8})
+        shown = []
+        for (segments, owner), colour, width in ((footprints, "white", 0.8),
+                                                 (cuts, "cyan", 1.5)):
+            mine = segments[panels.owner[owner] == index][:, :, plane_axes] / scale
+            if len(mine):
+                ax.add_collection(LineCollection(mine, colors=colour, linewidths=width))
+                shown.append(mine.reshape(-1, 2))
+        if shown:
+            points = np.concatenate(shown)
+            ax.annotate(name, points[np.argmax(points[:, 1])], xytext=(0, 4),
+                        textcoords="offset points", ha="center", va="bottom", fontsize=8,
+                        bbox={"boxstyle": "round,pad=0.2", "fc": "white", "ec": "none",
+                              "alpha": 0.8})
 
 
 def render_slice_picture(panels, axis, value, grid, arrays, target, unit):
@@ -82,6 +87,7 @@ def render_slice_picture(panels, axis, value, grid, arrays, target, unit):
     grid in metres, arrays in the grid's point order (SI); writes target (.png)."""
     from matplotlib import colormaps
     from matplotlib.figure import Figure  # heavy: loaded only to draw
+    from matplotlib.ticker import MaxNLocator
 
     scale = LENGTH_UNITS[unit]
     a, b = [i for i in range(3) if i != axis]
@@ -97,6 +103,7 @@ def render_slice_picture(panels, axis, value, grid, arrays, target, unit):
     phi = plane(arrays["phi"])
     e_u, e_w = plane(arrays["E"][:, a]), plane(arrays["E"][:, b])
 
+    reach = float(max(grid.spacing[a], grid.spacing[b]))    # one grid step: what the slice sees
     fig = Figure(figsize=(13, 5.6))
     axes = fig.subplots(1, 2)
     extent = (u[0], u[-1], w[0], w[-1])
@@ -107,22 +114,26 @@ def render_slice_picture(panels, axis, value, grid, arrays, target, unit):
         image = ax.imshow(values, origin="lower", extent=extent, aspect="equal",
                           cmap=colormaps[cmap].with_extremes(bad="lightgrey"),
                           norm=_clipped_log_norm(values.compressed(), floor),
-                          interpolation="nearest")
+                          interpolation="bilinear")
         fig.colorbar(image, ax=ax, shrink=0.85, label=label)
-        _outlines(ax, panels, axis, value, [a, b], scale)
+        _outlines(ax, panels, axis, value, [a, b], scale, reach)
         ax.set_xlabel(f"{'xyz'[a]} [{unit}]")
         ax.set_ylabel(f"{'xyz'[b]} [{unit}]")
         ax.set_xlim(u[0], u[-1])
         ax.set_ylim(w[0], w[-1])
+    title = "|E| (clipped log scale), field lines"
     if np.ptp(phi) > 0:
-        lines = axes[0].contour(u, w, phi, levels=11, colors="white", linewidths=0.6,
-                                alpha=0.8)
-        axes[0].clabel(lines, fontsize=6, fmt="%.3g V")
+        levels = MaxNLocator(10).tick_values(phi.min(), phi.max())
+        axes[0].contour(u, w, phi, levels=levels, colors="white", linewidths=0.7, alpha=0.9)
+        title += f", equipotentials every {levels[1] - levels[0]:.3g} V"
     if np.any(np.hypot(e_u, e_w) > 0):
-        axes[0].streamplot(u, w, e_u, e_w, color="skyblue", linewidth=0.4, density=0.9,
+        axes[0].streamplot(u, w, e_u, e_w, color="grey", linewidth=0.4, density=0.9,
                            arrowsize=0.6)
-    axes[0].set_title("|E| (clipped log scale), equipotentials, field lines", fontsize=10)
+    axes[0].set_title(title, fontsize=10)
     axes[1].set_title("energy density (clipped log scale)", fontsize=10)
     fig.suptitle(f"slice {'xyz'[axis]} = {value / scale:.6g} {unit}")
-    fig.tight_layout()
+    fig.text(0.5, 0.01, f"cyan: conductors cut by the slice; white: conductor surfaces within "
+             f"{reach / scale:.3g} {unit} of it; grey areas: inside a closed conductor",
+             ha="center", fontsize=8)
+    fig.tight_layout(rect=(0, 0.03, 1, 1))
     fig.savefig(target, dpi=110, format="png")

@@ -31,3 +31,25 @@ def plane_cut(vertices, axis, value, tol=1e-9):
     segments = np.take_along_axis(points[cut], first_two[..., None], axis=1)
     segments[:, :, axis] = value                  # on the plane, not a rounding off it
     return segments, cut
+
+
+def footprint(vertices, axis, value, reach):
+    """The outline of the panels lying wholly within reach of the plane x[axis] = value,
+    projected onto it: sheets in or just beside a slice (pads under it) that plane_cut cannot
+    show. Returns (segments (k, 2, 3), panel index (k,)): the edges that belong to one of those
+    panels only, i.e. the borders of the near part of the surface."""
+    v = np.asarray(vertices, float).reshape(-1, 3, 3)
+    near = np.flatnonzero(np.all(np.abs(v[:, :, axis] - value) <= reach, axis=1))
+    if not len(near):
+        return np.empty((0, 2, 3)), np.empty(0, int)
+    size = float(np.ptp(v.reshape(-1, 3), axis=0).max()) or 1.0
+    edges = v[near][:, _EDGES]                                   # (m, 3, 2, 3)
+    # corners meet exactly in a conforming mesh: rounding to a fraction of the size matches them
+    _, corner_id = np.unique(np.round(edges.reshape(-1, 3) / (1e-9 * size)), axis=0,
+                             return_inverse=True)
+    keys = np.sort(corner_id.reshape(-1, 2), axis=1)
+    _, edge_id, count = np.unique(keys, axis=0, return_inverse=True, return_counts=True)
+    border = count[edge_id.ravel()] == 1
+    segments = edges.reshape(-1, 2, 3)[border].copy()
+    segments[:, :, axis] = value
+    return segments, np.repeat(near, 3)[border]
