@@ -6,6 +6,7 @@ import numpy as np
 import pytest
 
 import bem3d
+from bem3d.export.sweep_summary import entry_column, plot_summary
 from bem3d.geometry import shapes
 from bem3d.geometry.plane_cut import footprint, plane_cut
 
@@ -70,3 +71,17 @@ def test_one_png_per_slice_named_in_the_mesh_unit(tmp_path):
     for name in names:
         image = matplotlib.image.imread(out / name)        # a PNG that reads back
         assert image.ndim == 3 and min(image.shape[:2]) > 100
+
+
+def test_sweep_plot_with_a_failed_case_and_a_warning_reads_back(tmp_path):
+    entry = ("mutual", "bottom", "top")
+    rows = [{"case": i, "label": f"case{i}", "status": status, "gap_mm": gap,
+             entry_column(entry): "" if status == "failed" else f"{1e-13 / (1 + gap):.9e}",
+             "warnings": "under-resolved gap" if i == 0 else ""}
+            for i, (status, gap) in enumerate([("ok", 0.0), ("failed", 0.5), ("ok", 1.0)])]
+    target = plot_summary(rows, "gap_mm", [], [entry], tmp_path / "summary.png")
+    assert target == tmp_path / "summary.png"
+    assert matplotlib.image.imread(target).ndim == 3
+    # nothing finished: no picture
+    assert plot_summary(rows[1:2], "gap_mm", [], [entry], tmp_path / "none.png") is None
+    assert not (tmp_path / "none.png").exists()
