@@ -6,7 +6,7 @@ from pathlib import Path
 from bem3d.base.constants import LENGTH_UNITS
 from bem3d.base.files import check_output_folder, staged_outputs
 from bem3d.base.units import prefix_for
-from bem3d.export.field_files import write_field_files
+from bem3d.export.field_files import picture_caption, write_field_files
 from bem3d.export.outputs import output_names, write_outputs
 from bem3d.export.report import REPORT_NAME, write_report
 from bem3d.post.field_map import AIR_BREAKDOWN_V_PER_M
@@ -192,7 +192,7 @@ class FieldResult(Result):
                 stage, self._panels_m, self._solved, self.model, self.field_map,
                 self.warnings, self.png or report, self._record_keys())
             if report:
-                pictures = [(PICTURE_TITLES.get(f.name, f.stem), f) for f in written
+                pictures = [(picture_caption(f.name), f) for f in written
                             if f.suffix == ".png"]
                 written.append(stage / REPORT_NAME)
                 write_report(written[-1], self._panels_m, self._solved, self.model,
@@ -200,9 +200,4 @@ class FieldResult(Result):
                              AIR_BREAKDOWN_V_PER_M)
         self.files = [folder / f.name for f in written]
         return self.files
-
-
-#: Captions of the field run's pictures in report.html.
-PICTURE_TITLES = {"surface_charge.png": "surface charge density on the conductors",
-                  "field_slice.png": "field magnitude on the first slice"}
 

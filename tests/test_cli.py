@@ -287,7 +287,7 @@ def test_field_writes_grid_slices_points_surface_and_pictures(two_spheres, tmp_p
     surface = pv.read(out / "surface.vtp")
     assert {"sigma", "E_normal", "E_face_max", "force_density"} <= set(surface.cell_data.keys())
     np.testing.assert_allclose(surface.cell_data["E_normal"], surface.cell_data["sigma"] / EPS0)
-    for png in ("surface_charge.png", "field_slice.png"):
+    for png in ("surface_charge.png", "field_slice_z_0mm.png", "field_slice_x_1.5mm.png"):
         data = (out / png).read_bytes()
         assert data[:8] == b"\x89PNG\r\n\x1a\n" and len(data) > 10_000
 

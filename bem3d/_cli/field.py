@@ -41,7 +41,8 @@ def add_parser(subparsers):
     p.add_argument("--unit-fields", action="store_true",
                    help="also write each conductor's field at 1 V (others 0 V) for superposition")
     p.add_argument("--png", action="store_true",
-                   help="render surface_charge.png and field_slice.png")
+                   help="render surface_charge.png and field_slice_<axis>_<value><unit>.png "
+                        "per slice")
     p.add_argument("--sensitivity", action="store_true",
                    help="also write dC/dx, dC/dy, dC/dz of the Maxwell matrix for each "
                         "conductor moved alone into result.json")

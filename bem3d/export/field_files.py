@@ -5,7 +5,7 @@ from pathlib import Path
 from bem3d.base.constants import LENGTH_UNITS
 from bem3d.base.files import atomic_path
 from bem3d.export.outputs import write_outputs
-from bem3d.export.pictures import render_slice, render_surface_charge
+from bem3d.export.pictures import render_slice_picture, render_surface_charge
 from bem3d.export.records import write_point_table
 from bem3d.export.vtk import surface_polydata, write_image, write_slice
 
@@ -30,34 +30,54 @@ def write_field_files(folder, panels, result, model, field_map, warnings=(), png
         target = folder / slice_name(axis, value, unit)
         write_slice(sgrid, arrays, target, unit)
         files.append(target)
-        slice_files.append((target, axis, arrays))
+        slice_files.append((axis, value, sgrid, arrays))
     if field_map.listed is not None:
         target = folder / "points.csv"
         write_point_table(*field_map.listed, target, unit)
         files.append(target)
     problems = []
     if png:
-        files += _pictures(panels, result, folder, slice_files[0], problems, unit)
+        files += _pictures(panels, result, folder, slice_files, problems, unit)
     return files, problems
+
+
+#: The 3D picture of the surface charge.
+SURFACE_PICTURE = "surface_charge.png"
+
+
+def _slice_stem(axis, value, unit):
+    """'z_0.25mm': the slice normal to axis (0, 1, 2) at value (m), in the mesh unit."""
+    return f"{'xyz'[axis]}_{value / LENGTH_UNITS[unit]:.6g}{unit}"
 
 
 def slice_name(axis, value, unit):
     """The file name of the slice normal to axis (0, 1, 2) at value (m), in the mesh unit."""
-    return f"slice_{'xyz'[axis]}_{value / LENGTH_UNITS[unit]:.6g}{unit}.vtp"
+    return f"slice_{_slice_stem(axis, value, unit)}.vtp"
 
 
-def _pictures(panels, result, folder, first_slice, problems, unit):
-    """surface_charge.png and the |E| picture of the first slice."""
-    import pyvista as pv
+def slice_picture_name(axis, value, unit):
+    """The picture of that slice: field_slice_z_0.25mm.png."""
+    return f"field_slice_{_slice_stem(axis, value, unit)}.png"
 
+
+def picture_caption(name):
+    """A caption for one of the field run's pictures, by its file name."""
+    if name == SURFACE_PICTURE:
+        return "surface charge density on the conductors"
+    where = name.removeprefix("field_slice_").removesuffix(".png").replace("_", " = ", 1)
+    return f"field and energy density on the slice {where}"
+
+
+def _pictures(panels, result, folder, slices, problems, unit):
+    """surface_charge.png and one picture per slice."""
     surface = surface_polydata(panels, {}, unit)
-    slice_path, axis, arrays = first_slice
+    jobs = [(folder / SURFACE_PICTURE,
+             lambda tmp: render_surface_charge(surface, result.panel_sigma(), tmp))]
+    for axis, value, sgrid, arrays in slices:
+        jobs.append((folder / slice_picture_name(axis, value, unit),
+                     lambda tmp, s=(axis, value, sgrid, arrays):
+                         render_slice_picture(panels, *s, tmp, unit)))
     written = []
-    jobs = [(folder / "surface_charge.png",
-             lambda tmp: render_surface_charge(surface, result.panel_sigma(), tmp)),
-            (folder / "field_slice.png",
-             lambda tmp: render_slice(surface, pv.read(slice_path), axis, arrays["E_magnitude"],
-                                      tmp, "field magnitude", "V/m"))]
     for target, job in jobs:
         try:
             with atomic_path(target) as tmp:

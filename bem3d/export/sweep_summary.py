@@ -1,10 +1,10 @@
-"""A sweep's summary: summary.csv (one row per case) and summary.png (entries against the first
-swept parameter)."""
+"""A sweep's summary: summary.csv (one row per case) and summary.png (the change of the entries
+against the first swept parameter)."""
 
 import math
 
 from bem3d.base.files import atomic_path, write_text
-from bem3d.base.units import prefix_for
+from bem3d.base.units import format_quantity, prefix_for
 from bem3d.export.names import csv_cell, csv_text
 
 
@@ -33,33 +33,52 @@ def _number(text):
 
 
 def plot_summary(rows, x_column, group_columns, entries, target):
-    """summary.png: the entries against x_column (numeric, or case labels when categorical),
-    one line per entry and combination of the group columns. Returns target, or None if no
-    case finished."""
+    """summary.png: the change of each entry from the first finished case of its line (ΔC)
+    against x_column (numeric, or the cases in order when categorical), one line per entry and
+    combination of the group columns; hollow markers for cases with warnings, a red x on the
+    axis for failed cases. Returns target, or None if no case finished."""
     from matplotlib.figure import Figure  # heavy: loaded only to draw
 
     ok = [r for r in rows if r["status"] == "ok"]
     if not ok:
         return None
-    categorical = any(isinstance(r[x_column], str) for r in ok)
-    values = [float(r[entry_column(e)]) for r in ok for e in entries if r[entry_column(e)]]
-    scale, prefix = prefix_for(values or [0.0])
-    fig = Figure(figsize=(8, 5))
-    ax = fig.add_subplot()
+    categorical = any(isinstance(r[x_column], str) for r in rows)
+    position = {id(r): i if categorical else float(r[x_column]) for i, r in enumerate(rows)}
     groups = {}
     for r in ok:
         groups.setdefault(tuple(r[c] for c in group_columns), []).append(r)
+    lines = []              # (label, x, ΔC (F), warned)
     for group, members in groups.items():
         suffix = "".join(f", {c}={v:g}" for c, v in zip(group_columns, group))
-        x = [m["label"] if categorical else m[x_column] for m in members]
         for e in entries:
             col = entry_column(e)
-            y = [float(m[col]) / scale if m[col] else math.nan for m in members]
-            ax.plot(x, y, marker="o", label=f"{e[0]} {e[1]}:{e[2]}{suffix}")
-    ax.set_xlabel("case" if categorical else x_column)
-    ax.set_ylabel(f"capacitance [{prefix}F]")
+            values = [float(m[col]) if m[col] else math.nan for m in members]
+            first = next((v for v in values if not math.isnan(v)), math.nan)
+            lines.append((f"{e[0]} {e[1]}:{e[2]}{suffix} (first {format_quantity(first, 'F')})",
+                          [position[id(m)] for m in members], [v - first for v in values],
+                          [bool(m.get("warnings")) for m in members]))
+    scale, prefix = prefix_for([d for *_, deltas, _ in lines for d in deltas
+                                if not math.isnan(d)] or [0.0])
+    fig = Figure(figsize=(8, 5))
+    ax = fig.add_subplot()
+    for label, x, deltas, warned in lines:
+        y = [d / scale for d in deltas]
+        colour = ax.plot(x, y, label=label)[0].get_color()
+        for hollow in (False, True):
+            pick = [i for i, w in enumerate(warned) if w == hollow]
+            ax.plot([x[i] for i in pick], [y[i] for i in pick], "o", color=colour,
+                    markerfacecolor="none" if hollow else colour)
+    if any(any(warned) for *_, warned in lines):
+        ax.plot([], [], "o", color="black", markerfacecolor="none", label="case with warnings")
+    failed = [position[id(r)] for r in rows if r["status"] == "failed"]
+    if failed:              # on the x axis: a failed case has no value to place it by
+        ax.plot(failed, [0.0] * len(failed), "x", color="red", markersize=9, clip_on=False,
+                transform=ax.get_xaxis_transform(), label="failed case")
     if categorical:
-        ax.tick_params(axis="x", labelrotation=60)
+        ax.set_xticks(range(len(rows)), [r["label"] for r in rows], rotation=60)
+    ax.axhline(0.0, color="grey", linewidth=0.6)
+    ax.set_xlabel("case" if categorical else x_column)
+    ax.set_ylabel(f"change from the first case, ΔC [{prefix}F]")
     ax.grid(True, alpha=0.3)
     ax.legend(fontsize="small")
     fig.tight_layout()
