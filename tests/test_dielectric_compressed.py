@@ -227,3 +227,24 @@ def test_a_dielectric_coat_on_a_conductor_leaves_no_interface():
     got = solve_panels(cond, dielectrics=bodies, backend="compressed")
     assert got.solver["interface_panels"] == 0
     np.testing.assert_allclose(got.maxwell, dense.maxwell, rtol=1e-4)
+
+
+def test_cached_operators_serve_other_materials_and_loss(two_in_a_box, tmp_path):
+    # the cached single-layer and normal-field operators depend on the panels alone: a re-run
+    # with another permittivity (and a loss tangent) from the cache equals a run without it,
+    # and the conductors-only cache entries are not taken for them
+    cond, bodies = two_in_a_box
+    kw = dict(backend="compressed", compression=SMALL_LEAVES, cache=True, cache_dir=tmp_path)
+    first = solve_panels(cond, dielectrics=bodies, **kw)
+    again = solve_panels(cond, dielectrics=bodies, **kw)
+    assert (first.solver["cache"], again.solver["cache"]) == ("stored", "hit")
+    np.testing.assert_allclose(again.maxwell, first.maxwell, rtol=1e-12)
+    lossy = [DielectricBody("box", 5.0, bodies[0].panels, loss_tangent=0.02)]
+    cached = solve_panels(cond, dielectrics=lossy, frequency=1e6, **kw)
+    fresh = solve_panels(cond, dielectrics=lossy, frequency=1e6, backend="compressed",
+                         compression=SMALL_LEAVES)
+    assert cached.solver["cache"] == "hit" and fresh.solver["cache"] == "off"
+    np.testing.assert_allclose(cached.maxwell, fresh.maxwell, rtol=1e-9)
+    np.testing.assert_allclose(cached.conductance, fresh.conductance, rtol=1e-9)
+    alone = solve_panels(cond, **kw)
+    assert alone.solver["cache"] == "stored"

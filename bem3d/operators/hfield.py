@@ -46,13 +46,33 @@ class FieldOperator(BlockProducts, LinearOperator):
     """The compressed normal-field matrix (rows: test panels, columns: source panels,
     dimensionless) as a LinearOperator in the callers' panel orders."""
 
+    BLOCK_NAMES = ("dense_blocks", "dense_offsets", "dense_data", "lr_blocks", "lr_offsets",
+                   "lr_ranks", "lr_data", "row_perm", "col_perm")
+    #: The names of arrays(): prefixed, so that they can share a cache entry with the
+    #: single-layer operator's.
+    ARRAY_NAMES = tuple("field_" + name for name in BLOCK_NAMES)
+
     def __init__(self, plan, memory_limit=None):
-        for name, value in assemble_blocks(plan.near, plan.far, plan.compression, plan.kernel_data,
-                                           plan.dense_numbers, memory_limit, False).items():
+        blocks = assemble_blocks(plan.near, plan.far, plan.compression, plan.kernel_data,
+                                 plan.dense_numbers, memory_limit, False)
+        self._take({**blocks, "row_perm": plan.rows.perm, "col_perm": plan.columns.perm})
+
+    @classmethod
+    def from_arrays(cls, arrays):
+        """The operator from arrays() (a cache entry)."""
+        self = cls.__new__(cls)
+        self._take({name: arrays["field_" + name] for name in cls.BLOCK_NAMES})
+        return self
+
+    def _take(self, arrays):
+        for name, value in arrays.items():
             setattr(self, name, value)
-        self.row_perm, self.col_perm = plan.rows.perm, plan.columns.perm
         self._split_work()
-        super().__init__(np.float64, (len(self.row_perm), len(self.col_perm)))
+        LinearOperator.__init__(self, np.float64, (len(self.row_perm), len(self.col_perm)))
+
+    def arrays(self):
+        """The operator as plain arrays, named ARRAY_NAMES."""
+        return {"field_" + name: getattr(self, name) for name in self.BLOCK_NAMES}
 
     def _matvec(self, x):
         return self._matmat(np.reshape(x, (-1, 1)))[:, 0]

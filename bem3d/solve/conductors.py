@@ -53,8 +53,10 @@ def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto"
     backend; its tolerance bounds each far block's relative error, which moves the
     capacitances by less than that (tools/bench_scale.py measures it against dense).
     cache: keep the compressed operator, its preconditioner and solution in cache_dir (default
-    cache.default_folder()) and reuse them when the same panels and settings come again;
-    cache_max_bytes: its size cap (default cache.size_cap()).
+    cache.default_folder()) and reuse them when the same panels and settings come again (with
+    dielectric bodies: both compressed operators and the preconditioner, whatever the
+    permittivities, loss and potentials); cache_max_bytes: its size cap (default
+    cache.size_cap()).
     ground_z: height (m) of an infinite grounded plane (method of images), or None.
     floating: names of conductors with zero net charge and unknown potential.
     dielectrics: dielectric.DielectricBody list; eps_r is then the background around them.
@@ -70,8 +72,9 @@ def solve_panels(panels, volts=None, eps_r=1.0, rules=PairRules(), solver="auto"
         background = complex_permittivity(eps_r, loss_tangent)
         mark = clock()
         with announce_compiling("dielectric", progress):
+            store = OperatorCache(cache_dir, cache_max_bytes) if cache else None
             result = _solve_dielectric(panels, volts, background, rules, tol, ground_z,
-                                       dielectrics, backend, compression, progress)
+                                       dielectrics, backend, compression, progress, store)
         result.timings_s["compile"] = compile_seconds_since(mark)
         result.solver.update({"floating": list(floating),
                               "dielectrics": {b.name: b.eps_r for b in dielectrics}})
@@ -227,7 +230,7 @@ def _solve_compressed(panels, rhs, eps_r, rules, tol, compression, ground_z, hav
 
 
 def _solve_dielectric(panels, volts, eps_r, rules, tol, ground_z, dielectrics, backend,
-                      compression, progress):
+                      compression, progress, store=None):
     system = plan_dielectrics(panels, dielectrics, eps_r, ground_z)
     have = available_memory()
     what = f"{len(panels)} conductor and {len(system.interfaces)} interface panels"
@@ -250,7 +253,8 @@ def _solve_dielectric(panels, volts, eps_r, rules, tol, ground_z, dielectrics, b
     _log(progress, f"solving {len(panels)} conductor panels with {len(dielectrics)} dielectric "
                    f"bodies (compressed, gmres): ~{format_bytes(plan.operator_bytes() + work)} of "
                    f"{format_bytes(have)} available ...")
-    result = solve_planned(plan, volts, tol, MAX_ITERATIONS, MEMORY_FRACTION * have - work)
+    result = solve_planned(plan, volts, tol, MAX_ITERATIONS, MEMORY_FRACTION * have - work,
+                           store)
     if not result.solver["converged"]:
         _log(progress, f"warning: GMRES stopped after {result.solver['iterations']} iterations "
                        f"at relative residual {result.solver['relative_residual']:.1e} (asked "

@@ -11,16 +11,18 @@ two-level Schwarz on the conductor rows, 1/w_k on the interface rows (the diagon
 block: a flat panel's own normal field vanishes)."""
 
 import math
+import sys
 
 import numba
 import numpy as np
 from threadpoolctl import threadpool_limits
 
 from bem3d.geometry.panels import Panels
+from bem3d.operators.cache import cache_key
 from bem3d.operators.cluster import ClusterTree
 from bem3d.operators.hfield import FieldOperator, FieldPlan
 from bem3d.operators.hmatrix import Compression, HMatrixOperator, HMatrixPlan
-from bem3d.operators.kernel_data import normal_field
+from bem3d.operators.kernel_data import FAR_TEST_DEGREE, normal_field
 from bem3d.operators.rules import PairRules
 from bem3d.solve.compiling import clock, seconds_since
 from bem3d.solve.dielectric import TEST_POINTS, system_result, system_rhs, union_panels
@@ -94,19 +96,61 @@ def _real_apply(apply, x):
     return apply(np.ascontiguousarray(x))
 
 
-def solve_planned(plan, volts=None, tol=1e-7, max_iterations=1000, memory_limit=None):
-    """Assemble and solve a DielectricPlan: a CapacitanceResult with timings in its solver
-    record. memory_limit: bytes the operators may take together (ResourceError beyond)."""
-    system = plan.system
-    nc, lam = len(system.conductors), system.lam
-    t0 = clock()
+def cache_settings(plan):
+    """What the operators of a DielectricPlan depend on besides the panels (operators.cache
+    keys): neither the permittivities nor the loss, which enter only the rows' coefficients,
+    so a cached entry serves other materials, potentials and frequencies too."""
+    return {"dielectric_operators": True, "rules": plan.rules.as_dict(),
+            "compression": plan.compression.as_dict(), "ground_z": plan.system.ground_z,
+            "subdomain_size": plan.subdomain_size, "test_points": TEST_POINTS,
+            "far_test_degree": FAR_TEST_DEGREE, "conductor_panels": len(plan.system.conductors)}
+
+
+def _operators(plan, memory_limit, store, key):
+    """(single-layer operator, normal-field operator or None, conductor Schwarz, from cache):
+    from the cache entry `key` of `store` (an OperatorCache or None) if there is one, else
+    assembled (memory_limit: bytes for both operators)."""
+    names = (HMatrixOperator.ARRAY_NAMES + SchwarzPreconditioner.ARRAY_NAMES
+             + (FieldOperator.ARRAY_NAMES if plan.field is not None else ()))
+    hit = store.load(key, names) if store is not None else None
+    if hit is not None:
+        single = HMatrixOperator(hit, 1.0)
+        field = FieldOperator.from_arrays(hit) if plan.field is not None else None
+        return single, field, SchwarzPreconditioner.from_arrays(hit, 1.0 / single.scale), True
     rest = None if memory_limit is None else memory_limit - plan.field_bytes()
     single = HMatrixOperator.assemble(plan.single, 1.0, rest)
     rest = None if memory_limit is None else memory_limit - single.nbytes
     field = None if plan.field is None else FieldOperator(plan.field, rest)
+    nc = len(plan.system.conductors)
+    schwarz = _conductor_schwarz(single, plan.single.panels.areas, nc, plan.subdomain_size)
+    return single, field, schwarz, False
+
+
+def _store(store, key, single, field, schwarz):
+    """Keep the operators in the cache; a cache that cannot be written costs a rebuild next
+    time, never the run (a one-line warning on stderr). Returns what the solver record says."""
+    arrays = {**single.arrays(), **schwarz.arrays(), **(field.arrays() if field else {})}
+    try:
+        store.save(key, arrays)
+    except OSError as err:
+        print(f"warning: operator cache {store.folder} cannot be written "
+              f"({err.strerror or err}); the operators are rebuilt next time", file=sys.stderr)
+        return "not stored"
+    return "stored"
+
+
+def solve_planned(plan, volts=None, tol=1e-7, max_iterations=1000, memory_limit=None,
+                  store=None):
+    """Assemble (or take from the operator cache `store`, an operators.cache.OperatorCache)
+    and solve a DielectricPlan: a CapacitanceResult with timings in its solver record.
+    memory_limit: bytes the operators may take together (ResourceError beyond)."""
+    system = plan.system
+    nc, lam = len(system.conductors), system.lam
+    key = cache_key(plan.both, cache_settings(plan)) if store is not None else None
+    t0 = clock()
+    single, field, schwarz, cached = _operators(plan, memory_limit, store, key)
     assembly = seconds_since(t0)
     t0 = clock()
-    schwarz = _conductor_schwarz(single, plan.single.panels.areas, nc, plan.subdomain_size)
     scale = np.mean(single.diagonal()[:nc] / system.conductors.areas)
     weight = (scale * system.interfaces.areas)[:, None]
     coupling = (lam / (2 * math.pi))[:, None]
@@ -141,4 +185,8 @@ def solve_planned(plan, volts=None, tol=1e-7, max_iterations=1000, memory_limit=
         "preconditioner_MiB": schwarz.nbytes / 2**20,
         "memory_estimate_MiB": (plan.operator_bytes() + plan.work_bytes(rhs.shape[1])) / 2**20})
     result.timings_s.update({"assembly": assembly, "solve": solve})
+    result.solver["cache"] = ("off" if store is None else "hit" if cached
+                              else _store(store, key, single, field, schwarz))
+    if store is not None:
+        result.solver["cache_file"] = str(store.path(key))
     return result
