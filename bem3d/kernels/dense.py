@@ -69,7 +69,6 @@ def _mirror_lower(out):
                     out[j, i] = out[i, j]
 
 
-@njit(parallel=True, cache=True)
 def assemble_dense(out, data):
     """Fill out (n, n) with the Galerkin integrals of 1/|x - y| for every panel pair (m^3) of
     data (data.SingleLayer), less those with the panels' mirror images when data.grounded.
@@ -78,7 +77,14 @@ def assemble_dense(out, data):
     paired (k, n-1-k) so that both threads get the same amount of work. The image block is
     symmetric too (reflecting both panels swaps them) and is subtracted the same way, after
     the panels' own block (method of images: each panel's image carries the opposite
-    charge)."""
+    charge). Two kernels, so that a model without a plane never compiles the image one."""
+    _own_block(out, data)
+    if data.grounded:
+        _subtract_images(out, data)
+
+
+@njit(parallel=True, cache=True)
+def _own_block(out, data):
     n = data.areas.shape[0]
     for i in prange((n + 1) // 2):
         i = np.int64(i)          # prange indices may be unsigned; keep index arithmetic signed
@@ -87,8 +93,11 @@ def assemble_dense(out, data):
         if j != i:
             _fill_row(j, out, data)
     _mirror_lower(out)
-    if not data.grounded:
-        return
+
+
+@njit(parallel=True, cache=True)
+def _subtract_images(out, data):
+    n = data.areas.shape[0]
     for i in prange((n + 1) // 2):
         i = np.int64(i)
         _image_row(i, out, data)
