@@ -10,37 +10,21 @@ import math
 
 import numpy as np
 import pytest
+from reference_values import (
+    CUBE_NORMALISED,
+    EPS0,
+    coaxial_disks,
+    coaxial_disks_auto_n,
+    cube_capacitance,
+    isolated_sphere,
+    richardson,
+    sphere_in_shell,
+    thin_disk,
+    two_spheres,
+    two_spheres_images,
+)
 from scipy.integrate import quad
 from scipy.special import ellipkm1
-
-try:
-    from reference_values import (
-        CUBE_NORMALISED,
-        EPS0,
-        coaxial_disks,
-        coaxial_disks_auto_n,
-        cube_capacitance,
-        isolated_sphere,
-        richardson,
-        sphere_in_shell,
-        thin_disk,
-        two_spheres,
-        two_spheres_images,
-    )
-except ImportError:  # pragma: no cover - if tests/ becomes a package
-    from tests.reference_values import (
-        CUBE_NORMALISED,
-        EPS0,
-        coaxial_disks,
-        coaxial_disks_auto_n,
-        cube_capacitance,
-        isolated_sphere,
-        richardson,
-        sphere_in_shell,
-        thin_disk,
-        two_spheres,
-        two_spheres_images,
-    )
 
 K4PI = 4.0 * math.pi * EPS0
 

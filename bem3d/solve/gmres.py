@@ -33,14 +33,14 @@ def gmres_columns(apply, precondition, rhs, tol=1e-7, restart=60, max_iterations
     after every step (residuals: the active columns' relative estimates)."""
     rhs = np.asarray(rhs)
     n, k = rhs.shape
-    probe = apply(np.zeros((n, 1), rhs.dtype))
-    dtype = np.result_type(rhs.dtype, probe.dtype)
+    # one column through the operator tells whether the iteration is real or complex
+    dtype = np.result_type(rhs.dtype, apply(np.zeros((n, 1), rhs.dtype)).dtype)
     x = np.zeros((n, k), dtype)
+    r = rhs.astype(dtype)                    # the residual of the zero start, without a product
     norms = np.linalg.norm(rhs, axis=0)
     norms[norms == 0] = 1.0
     iterations = 0
     while True:
-        r = rhs - apply(x)
         residuals = np.linalg.norm(r, axis=0) / norms
         active = np.flatnonzero(residuals > tol)
         if not active.size or iterations >= max_iterations:
@@ -50,6 +50,7 @@ def gmres_columns(apply, precondition, rhs, tol=1e-7, restart=60, max_iterations
                                    iterations)
         x[:, active] += correction
         iterations += steps
+        r = rhs - apply(x)
     return x, GmresReport(iterations, residuals, bool(np.all(residuals <= tol)))
 
 
